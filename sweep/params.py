@@ -39,6 +39,8 @@ UNIT_SUFFIXES = {
     "_pc": "pc",
     "_au": "au",
     "_uJy": "uJy",
+    "_Jy": "Jy",
+    "_searth": "S_earth",
     "_lod": "lambda/D",
     "_mas": "mas",
     "_h": "h",
