@@ -1,0 +1,416 @@
+"""Instrument concepts: detection models, one module per kind, behind one small interface.
+
+A concept turns the planets of a block into detection masks, one per band::
+
+    concept = build_concept(parse_concept(raw_table, where="study.toml: concepts[0]"))
+    mask = concept.detect(planets, stars, resolved_section)   # bool, (n_bands, n_planets)
+
+``resolved_section`` is the concept's validated section after :func:`sweep.params.resolve`: every
+numeric field is a float (fixed, or the current grid point) or an array of shape ``(n_rows,)``
+(an uncertain factor, one value per row of the block); index such arrays by ``planets.row``.
+
+Built-in kinds: ``"interferometer"`` (:mod:`sweep.concepts.interferometer`, thermal emission) and
+``"coronagraph"`` (:mod:`sweep.concepts.coronagraph`, reflected light).
+
+Adding a kind
+-------------
+Inside ``sweep``: write ``sweep/concepts/<kind>.py`` with a section schema and a :class:`Concept`
+subclass, call :func:`register` at the bottom, and import the module at the end of this file.
+
+Outside ``sweep`` (a plug-in): name a class as ``kind = "module:Class"`` in the sweep definition,
+where ``module`` is an importable module name (``my_concepts.lidar``) or a path to a ``.py``
+file (``workflows/plugin_concept.py``, relative to ``base_dir`` or the working directory). The
+class must have a ``Schema`` attribute (a pydantic model with ``extra="forbid"`` and at least the
+fields ``name``, ``kind`` and ``bands``) and implement the :class:`Concept` interface; the easiest
+way is to subclass :class:`Concept` and :class:`ConceptSchema`. See ``workflows/plugin_concept.py``.
+Dask workers import the plug-in too: a file must be readable at the same absolute path on every
+worker (a shared file system), a module importable there (same environment and ``PYTHONPATH``).
+
+.. warning::
+   Naming a plug-in in a sweep definition **imports and runs that Python module with your
+   permissions**, on this machine and on every dask worker. Only name modules you wrote or trust,
+   as with any Python code you run.
+"""
+
+from __future__ import annotations
+
+import importlib
+import importlib.abc
+import importlib.util
+import re
+import sys
+import types
+from abc import ABC, abstractmethod
+from pathlib import Path
+from typing import Any, Callable, ClassVar
+
+import numpy as np
+from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_validator, model_validator
+
+from sweep import params as _params
+from sweep.errors import UserInputError
+from sweep.params import PositiveParam
+
+__all__ = [
+    "BandSchema",
+    "Concept",
+    "ConceptSchema",
+    "LastResult",
+    "build_concept",
+    "cache_key",
+    "concept_schema",
+    "is_scalar",
+    "kinds",
+    "nominal",
+    "parse_concept",
+    "per_planet",
+    "register",
+]
+
+_NAME_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_+-]*$"
+
+
+class BandSchema(BaseModel):
+    """A band of a concept: a top-hat in wavelength. Kinds add their own sensitivity fields."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    name: str = Field(pattern=_NAME_PATTERN, description="Band label (letters, digits, _ + -).")
+    center_um: PositiveParam = Field(description="Band centre wavelength [um].")
+    width_um: PositiveParam = Field(description="Full band width in wavelength [um].")
+
+    @model_validator(mode="after")
+    def _width_below_twice_centre(self):
+        if _params.bounds(self.width_um)[1] >= 2.0 * _params.bounds(self.center_um)[0]:
+            raise ValueError(
+                f"band {self.name!r}: width_um must be smaller than twice center_um "
+                "(the band would reach zero wavelength)"
+            )
+        return self
+
+
+class ConceptSchema(BaseModel):
+    """Fields every concept section has. Kinds subclass it and narrow ``kind`` and ``bands``."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    name: str = Field(pattern=_NAME_PATTERN, description="Concept label (letters, digits, _ + -).")
+    kind: str = Field(description="Concept kind: a built-in kind or 'module:Class' (a plug-in).")
+    bands: list[BandSchema] = Field(min_length=1, description="Observing bands (at least one).")
+
+    @field_validator("bands", mode="after")
+    @classmethod
+    def _distinct_band_names(cls, bands):
+        names = [band.name for band in bands]
+        duplicates = sorted({n for n in names if names.count(n) > 1})
+        if duplicates:
+            raise ValueError(f"band names must be distinct; repeated: {', '.join(duplicates)}")
+        return bands
+
+
+def per_planet(value, row: np.ndarray):
+    """A resolved parameter at each planet: a float stays a float, a per-row array is indexed.
+
+    Parameters
+    ----------
+    value : float or ndarray, shape (n_rows,)
+        A resolved parameter (fixed or grid point: float; uncertain factor: one value per row).
+    row : ndarray of int
+        Row of each planet within the block (``planets.row``).
+    """
+    if np.ndim(value) == 0:
+        return float(value)
+    return np.asarray(value, np.float64)[row]
+
+
+def is_scalar(*values) -> bool:
+    """True when every resolved parameter is a single number (no per-row factor among them)."""
+    return all(np.ndim(v) == 0 for v in values)
+
+
+def nominal(value) -> float:
+    """A representative number of an unresolved parameter: the fixed value, the median grid value
+    or the median of the distribution."""
+    if isinstance(value, _params.Grid):
+        return float(np.median(value.grid))
+    if isinstance(value, _params.Uncertain):
+        return float(value.frozen().median())
+    return float(value)
+
+
+def cache_key(*values) -> tuple:
+    """A hashable, comparable key of resolved parameters (floats or per-row arrays)."""
+    return tuple(float(v) if np.ndim(v) == 0 else np.asarray(v).tobytes() for v in values)
+
+
+class LastResult:
+    """Remembers one result, keyed by an object's identity and a tuple of numbers.
+
+    Grid points of a block see the same planets; a quantity that depends only on the planets and
+    on parameters that did not change (a band's thermal flux when only the aperture is gridded)
+    is then computed once per block. The entry is replaced in one attribute assignment, so threads
+    sharing a concept never see a mixed entry. Holding the object keeps ``is`` identity sound.
+    """
+
+    __slots__ = ("_entry",)
+
+    def __init__(self):
+        self._entry = None
+
+    def __reduce__(self):  # a pickled concept travels without the block it last saw
+        return (LastResult, ())
+
+    def get(self, owner: Any, key: tuple, compute: Callable[[], Any]):
+        entry = self._entry
+        if entry is not None and entry[0] is owner and entry[1] == key:
+            return entry[2]
+        value = compute()
+        self._entry = (owner, key, value)
+        return value
+
+
+class Concept(ABC):
+    """What the model needs from an instrument concept.
+
+    Subclasses set :attr:`Schema` and implement :meth:`detect`. They are built once per sweep from
+    the validated (unresolved) section and must not keep per-block state other than caches.
+
+    Parameters
+    ----------
+    section : ConceptSchema
+        The validated concept section (numbers may still be grids or distributions).
+    """
+
+    #: The pydantic schema of this kind's section.
+    Schema: ClassVar[type[BaseModel]] = ConceptSchema
+
+    def __init__(self, section: BaseModel):
+        self.section = section
+
+    @property
+    def name(self) -> str:
+        """The concept's label."""
+        return self.section.name
+
+    @property
+    def band_names(self) -> list[str]:
+        """Band labels, in the order of the first axis of :meth:`detect`."""
+        return [band.name for band in self.section.bands]
+
+    @property
+    def band_wavelengths_um(self) -> list[float]:
+        """Nominal band centres [um] (the fixed value, or the median grid value or prior median)."""
+        return [nominal(band.center_um) for band in self.section.bands]
+
+    @abstractmethod
+    def detect(self, planets, stars, params) -> np.ndarray:
+        """Detection masks.
+
+        Parameters
+        ----------
+        planets : sweep.structs.PlanetBatch
+            Planets of a block.
+        stars : sweep.structs.StarTable
+            Their host stars (``planets.star`` indexes this table).
+        params : BaseModel
+            This concept's section after :func:`sweep.params.resolve` (floats or ``(n_rows,)``
+            arrays).
+
+        Returns
+        -------
+        ndarray of bool, shape (n_bands, n_planets)
+            True where the planet is detected in the band.
+        """
+
+
+_REGISTRY: dict[str, tuple[type[BaseModel], Callable[[BaseModel], Concept]]] = {}
+
+
+def register(kind: str, section_schema: type[BaseModel], factory: Callable[[BaseModel], Concept]) -> None:
+    """Make a concept kind available under ``kind = "<kind>"`` in sweep definitions.
+
+    Parameters
+    ----------
+    kind : str
+        The kind's name.
+    section_schema : type
+        Pydantic model of the section (``extra="forbid"``; fields ``name``, ``kind``, ``bands``).
+    factory : callable
+        ``factory(validated_section) -> Concept``.
+    """
+    if not re.fullmatch(r"[a-z][a-z0-9_-]*", kind):
+        raise ValueError(f"concept kind {kind!r} must be lower-case letters, digits, '_' or '-'")
+    _check_schema(section_schema, kind)
+    _REGISTRY[kind] = (section_schema, factory)
+
+
+def kinds() -> list[str]:
+    """Names of the registered (built-in) kinds."""
+    return sorted(_REGISTRY)
+
+
+def _check_schema(schema: Any, kind: str) -> None:
+    if not (isinstance(schema, type) and issubclass(schema, BaseModel)):
+        raise TypeError(f"concept kind {kind!r}: the section schema must be a pydantic BaseModel")
+    missing = {"name", "kind", "bands"} - set(schema.model_fields)
+    if missing:
+        raise TypeError(f"concept kind {kind!r}: the section schema lacks the fields {sorted(missing)}")
+
+
+#: Package under which plug-in files are imported: ``<package>.p<hex of the absolute path>``.
+#: The name encodes the file, so a dask worker that unpickles a plug-in class imports the same
+#: file (given the same file system) through :class:`_PluginFileFinder`.
+_PLUGIN_PACKAGE = __name__ + "._plugin_files"
+_PLUGINS_BY_SCHEMA: dict[type, type] = {}
+
+
+class _PluginFileFinder(importlib.abc.MetaPathFinder):
+    """Finds ``sweep.concepts._plugin_files.p<hex>`` modules: the file whose path is the hex."""
+
+    def find_spec(self, fullname, path=None, target=None):
+        prefix = _PLUGIN_PACKAGE + ".p"
+        if not fullname.startswith(prefix):
+            return None
+        try:
+            file = bytes.fromhex(fullname[len(prefix):]).decode()
+        except ValueError:
+            return None
+        return importlib.util.spec_from_file_location(fullname, file)
+
+
+def _install_plugin_finder() -> None:
+    if _PLUGIN_PACKAGE not in sys.modules:
+        package = types.ModuleType(_PLUGIN_PACKAGE, "Plug-in concept modules imported from files.")
+        package.__path__ = []
+        sys.modules[_PLUGIN_PACKAGE] = package
+    if not any(isinstance(finder, _PluginFileFinder) for finder in sys.meta_path):
+        sys.meta_path.append(_PluginFileFinder())
+
+
+_install_plugin_finder()
+
+
+def _load_plugin(kind: str, where: str, base_dir: Path | None):
+    module_name, _, class_name = kind.rpartition(":")
+    if not module_name or not class_name.isidentifier():
+        raise UserInputError(
+            f"{where}.kind: {kind!r} is not a concept kind; use one of {', '.join(kinds())} "
+            "or a plug-in written 'module:Class' or 'path/to/file.py:Class'"
+        )
+    if module_name.endswith(".py"):
+        path = Path(module_name).expanduser()
+        if not path.is_absolute():
+            path = (base_dir or Path.cwd()) / path
+        if not path.is_file():
+            raise UserInputError(f"{where}.kind: plug-in file {str(path)!r} does not exist")
+        module_name = f"{_PLUGIN_PACKAGE}.p{str(path.resolve()).encode().hex()}"
+    try:
+        module = importlib.import_module(module_name)
+    except ImportError as exc:
+        raise UserInputError(f"{where}.kind: cannot import plug-in module {module_name!r}: {exc}") from None
+    cls = getattr(module, class_name, None)
+    if not isinstance(cls, type):
+        raise UserInputError(f"{where}.kind: plug-in module {module_name!r} has no class {class_name!r}")
+    schema = getattr(cls, "Schema", None)
+    try:
+        _check_schema(schema, kind)
+    except TypeError as exc:
+        raise UserInputError(f"{where}.kind: {exc}; see sweep.concepts.ConceptSchema") from None
+    if not callable(getattr(cls, "detect", None)):
+        raise UserInputError(f"{where}.kind: plug-in class {kind!r} has no detect() method")
+    _PLUGINS_BY_SCHEMA[schema] = cls
+    return schema, cls
+
+
+def _schema_and_factory(kind: str, where: str = "concept", base_dir: Path | None = None):
+    if kind in _REGISTRY:
+        return _REGISTRY[kind]
+    if ":" in kind:
+        return _load_plugin(kind, where, base_dir)
+    raise UserInputError(
+        f"{where}.kind: unknown concept kind {kind!r}; use one of {', '.join(kinds())} "
+        "or a plug-in written 'module:Class'"
+    )
+
+
+def concept_schema(kind: str) -> type[BaseModel]:
+    """The section schema of a kind (built-in, or a plug-in named ``module:Class``)."""
+    return _schema_and_factory(kind)[0]
+
+
+def _location(loc: tuple) -> str:
+    text = ""
+    for part in loc:
+        text += f"[{part}]" if isinstance(part, int) else f".{part}"
+    return text
+
+
+def _one_line(exc: ValidationError, where: str, schema: type[BaseModel]) -> str:
+    error = exc.errors(include_url=False)[0]
+    # Drop the labels pydantic adds for the branches of a union (fixed / grid / dist, validators).
+    loc = tuple(p for p in error["loc"] if isinstance(p, int) or (
+        p not in ("fixed", "grid", "dist") and not p.startswith(("function-", "tagged-union"))))
+    message = error["msg"].removeprefix("Value error, ")
+    kind = error["type"]
+    if kind == "extra_forbidden":
+        message = "unknown key"
+        if len(loc) == 1:
+            message += f"; allowed: {', '.join(schema.model_fields)}"
+    elif kind == "missing":
+        message = "required key is missing"
+    elif kind == "too_short":
+        message = f"needs at least {error.get('ctx', {}).get('min_length', 1)} entry"
+    value = error.get("input")
+    shown = "" if kind == "missing" or "got" in message or isinstance(value, (dict, list)) else f" (got {value!r})"
+    return f"{where}{_location(loc)}: {message}{shown}"
+
+
+def parse_concept(raw: dict, where: str, base_dir: Path | str | None = None) -> BaseModel:
+    """Validate one concept section of a sweep definition.
+
+    Parameters
+    ----------
+    raw : dict
+        The section as read from TOML.
+    where : str
+        Prefix naming the section in messages, e.g. ``"study.toml: concepts[1]"``.
+    base_dir : path, optional
+        Directory against which a plug-in's relative ``.py`` path is resolved (default: the
+        working directory).
+
+    Returns
+    -------
+    BaseModel
+        The validated section (an instance of the kind's schema).
+
+    Raises
+    ------
+    UserInputError
+        One line naming the key path: unknown kind, unknown key, value out of range...
+    """
+    if not isinstance(raw, dict):
+        raise UserInputError(f"{where}: a concept must be a table with keys name, kind and bands")
+    kind = raw.get("kind")
+    if not isinstance(kind, str):
+        raise UserInputError(
+            f"{where}.kind: required, one of {', '.join(kinds())} or a plug-in 'module:Class'"
+        )
+    schema, _ = _schema_and_factory(kind, where, Path(base_dir) if base_dir is not None else None)
+    try:
+        return schema.model_validate(raw)
+    except ValidationError as exc:
+        raise UserInputError(_one_line(exc, where, schema)) from None
+
+
+def build_concept(section: BaseModel) -> Concept:
+    """The :class:`Concept` of a validated section (from :func:`parse_concept`)."""
+    plugin = _PLUGINS_BY_SCHEMA.get(type(section))
+    if plugin is not None:
+        return plugin(section)
+    _, factory = _schema_and_factory(section.kind)
+    return factory(section)
+
+
+# Built-in kinds register themselves on import.
+from sweep.concepts import coronagraph as _coronagraph  # noqa: E402,F401
+from sweep.concepts import interferometer as _interferometer  # noqa: E402,F401
