@@ -1,0 +1,369 @@
+"""Drawing the planets of every star for a block of rows, with common random numbers.
+
+The draw follows DESIGN.md ("Rows, seeds and common random numbers"). For each row of a block:
+
+1. candidates: every star gets ``Poisson(envelope total of its class)`` candidates from the row's
+   :data:`~sweep.streams.CANDIDATES` stream, where the envelope (:attr:`OccurrenceModel.envelope`)
+   is fixed by the spec and never depends on factor values;
+2. each candidate gets all its uniforms at once, one ``rng.random((N_UNIFORMS, n))`` call, in the
+   order of :data:`UNIFORMS` (cell, acceptance, ln R, ln P, cos i, mean anomaly, argument of
+   periapsis, Bond albedo, geometric albedo, eccentricity);
+3. thinning (Lewis & Shedler 1979): a candidate in cell ``k`` is kept when its acceptance uniform
+   is below ``rate_k / envelope_k``; where a row's rate exceeds the envelope, the excess planets
+   come from the row's :data:`~sweep.streams.EXCESS` stream (Poisson per cell, hosts uniform among
+   the stars of the class), so the planets of a star are exactly ``Poisson(rate)`` per cell;
+4. every property comes from its own uniform through an inverse CDF: ln R and ln P within the cell
+   (density ``∝ R^alpha P^beta``), ``cos i`` uniform on [-1, 1] (isotropic orbits), mean anomaly
+   and argument of periapsis uniform on [0, 2 pi), albedos and eccentricity by ``prior.ppf(u)``.
+
+So a row's planets depend only on (sweep seed, base index, population source) and the row's
+factor values; raising a rate keeps every planet drawn before and adds a few; changing an albedo
+hyperparameter moves albedos smoothly and leaves every radius, period and orbit as it was.
+Derived quantities (semi-major axis, equilibrium temperature, mass, RV semi-amplitude, sky
+geometry) come from :mod:`sweep.physics` for all planets of the block at once.
+
+Equilibrium temperature and insolation are orbit averages: the mean flux of an eccentric orbit is
+``L / (4 pi a^2 sqrt(1 - e^2))`` [2]_.
+
+References
+----------
+.. [1] Lewis, P. A. W. & Shedler, G. S. 1979, "Simulation of nonhomogeneous Poisson processes by
+   thinning", Naval Research Logistics Quarterly 26, 403; doi:10.1002/nav.3800260304 (from memory)
+.. [2] Williams, D. M. & Pollard, D. 2002, "Earth-like worlds on eccentric orbits", International
+   Journal of Astrobiology 1, 61; doi:10.1017/S1473550402001064 (from memory)
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from typing import Literal
+
+import numpy as np
+import scipy.stats
+from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, model_validator
+
+from sweep import params, streams
+from sweep.blocks import RowBlock
+from sweep.occurrence import OccurrenceModel
+from sweep.physics import habitability, masses, orbits, radiation
+from sweep.structs import PlanetBatch, StarTable
+
+#: Per-candidate uniforms, in the order of the rows of the array drawn for each row.
+UNIFORMS = ("cell", "accept", "ln_radius", "ln_period", "cos_inclination", "mean_anomaly",
+            "arg_periapsis", "bond_albedo", "geometric_albedo", "eccentricity")
+N_UNIFORMS = len(UNIFORMS)
+(_CELL, _ACCEPT, _LNR, _LNP, _COSI, _MEAN_ANOMALY, _PERIAPSIS, _BOND, _GEOMETRIC,
+ _ECC) = range(N_UNIFORMS)
+
+_PARAM = TypeAdapter(params.Param)
+_TWO_PI = 2.0 * np.pi
+
+
+class Prior(BaseModel):
+    """A planet-level prior: a continuous ``scipy.stats`` distribution and its keyword arguments.
+
+    ``dist`` names the distribution; every other key is one of its arguments (``loc``, ``scale``,
+    shape parameters), written as a spec parameter: a number, a grid, or itself uncertain (a
+    hyperprior, for instance ``loc = { dist = "uniform", loc = 0.1, scale = 0.2 }``).
+    """
+
+    model_config = ConfigDict(extra="allow")
+
+    dist: str = Field(description="Name of a continuous distribution in scipy.stats.")
+
+    @model_validator(mode="after")
+    def _arguments_are_params(self):
+        family = getattr(scipy.stats, self.dist, None)
+        if not isinstance(family, scipy.stats.rv_continuous):
+            raise ValueError(f"dist = {self.dist!r} is not a continuous distribution of scipy.stats "
+                             "(for example 'uniform', 'beta', 'truncnorm', 'lognorm')")
+        extra = self.__pydantic_extra__ or {}
+        for key, value in list(extra.items()):
+            try:
+                extra[key] = _PARAM.validate_python(value)
+            except Exception as exc:
+                raise ValueError(f"argument {key!r} of dist {self.dist!r}: {exc}".splitlines()[0]) from None
+        self.support_range()  # scipy.stats accepts the arguments over their whole range
+        return self
+
+    def arguments(self) -> dict:
+        """The distribution's keyword arguments (numbers, grids, uncertain parameters or arrays)."""
+        return dict(self.__pydantic_extra__ or {})
+
+    def _corners(self):
+        ranges = {}
+        for key, value in self.arguments().items():
+            low, high = params.bounds(value)
+            if isinstance(value, params.Uncertain) and not (math.isfinite(low) and math.isfinite(high)):
+                low, high = (float(v) for v in value.frozen().ppf([1e-9, 1.0 - 1e-9]))
+            ranges[key] = sorted({low, high})
+        keys = list(ranges)
+        for combo in itertools.product(*(ranges[k] for k in keys)):
+            yield dict(zip(keys, combo))
+
+    def support_range(self) -> tuple[float, float]:
+        """Smallest and largest value the prior can give, over every hyperparameter's range.
+
+        Checks that ``scipy.stats`` accepts the arguments at each corner of the hyperparameters'
+        ranges (bounds of grids and distributions; the 1e-9 quantiles of unbounded ones).
+        """
+        family = getattr(scipy.stats, self.dist)
+        low, high = np.inf, -np.inf
+        for arguments in self._corners():
+            try:
+                median = float(family.ppf(0.5, **arguments))
+                a, b = (float(v) for v in family.support(**arguments))
+            except TypeError as exc:
+                raise ValueError(f"scipy.stats.{self.dist} rejects the arguments {arguments}: {exc}") from None
+            if not math.isfinite(median):
+                raise ValueError(f"scipy.stats.{self.dist} is not a valid distribution with {arguments} "
+                                 "(check the parameter ranges in the scipy.stats documentation)")
+            low, high = min(low, a), max(high, b)
+        return low, high
+
+    def ppf(self, quantile: np.ndarray, row: np.ndarray) -> np.ndarray:
+        """Inverse CDF at ``quantile``, with per-row hyperparameters indexed by ``row``.
+
+        Parameters
+        ----------
+        quantile : ndarray
+            Uniforms in [0, 1), one per planet.
+        row : ndarray of int
+            Row (within the block) of each planet; selects the arguments that are per-row arrays.
+        """
+        arguments = {}
+        for key, value in self.arguments().items():
+            value = np.asarray(value, dtype=float)
+            arguments[key] = value[row] if value.ndim else float(value)
+        return getattr(scipy.stats, self.dist).ppf(quantile, **arguments)
+
+
+def _default_bond_albedo() -> Prior:
+    return Prior(dist="uniform", loc=0.1, scale=0.5)
+
+
+class PriorsSection(BaseModel):
+    """Planet-level priors (``[planets]`` of a spec).
+
+    The default Bond albedo is uniform on [0.1, 0.6], a broad choice of ours spanning rocky and
+    cloudy planets (Earth's Bond albedo is about 0.3; from memory). The geometric albedo follows
+    the Bond albedo through the Lambert phase integral (``p = 2 A_B / 3``) unless given its own
+    prior. Orbits are circular unless an eccentricity prior is given (Kipping 2013, MNRAS 434, L51,
+    suggests ``dist = "beta", a = 0.867, b = 3.03``; from memory).
+    """
+
+    model_config = ConfigDict(extra="forbid")
+
+    bond_albedo: Prior = Field(default_factory=_default_bond_albedo, description="Prior of the Bond albedo [1].")
+    geometric_albedo: Prior | Literal["lambert"] = Field(
+        default="lambert", description="Prior of the geometric albedo [1], or 'lambert': p = 2 A_B / 3.")
+    eccentricity: Prior | None = Field(default=None, description="Prior of the eccentricity [1]; none: circular.")
+    redistribution: Literal["full", "dayside"] = Field(
+        default="full", description="Heat redistribution for the equilibrium temperature.")
+
+    @model_validator(mode="after")
+    def _supports(self):
+        checks = [("bond_albedo", self.bond_albedo, 0.0, 1.0, "within [0, 1]")]
+        if isinstance(self.geometric_albedo, Prior):
+            checks.append(("geometric_albedo", self.geometric_albedo, 0.0, np.inf, ">= 0"))
+        if self.eccentricity is not None:
+            checks.append(("eccentricity", self.eccentricity, 0.0, 1.0, "within [0, 1]"))
+        for name, prior, low, high, what in checks:
+            a, b = prior.support_range()
+            if a < low or b > high:
+                raise ValueError(f"{name}: the support of scipy.stats.{prior.dist} reaches "
+                                 f"[{a:g}, {b:g}]; it must be {what}")
+        return self
+
+
+class _WithinCell:
+    """Inverse CDF of the density ``∝ exp(exponent x)`` on each cell's [low, high] (x = ln R or ln P).
+
+    ``x = low + ln(1 + u (exp(exponent w) - 1)) / exponent`` with ``w = high - low``, and
+    ``x = low + u w`` for exponent 0; the per-cell constants are computed once.
+    """
+
+    def __init__(self, exponent, low, high):
+        exponent, low, high = (np.asarray(v, float).ravel() for v in (exponent, low, high))
+        width = high - low
+        self.flat = exponent == 0.0
+        safe = np.where(self.flat, 1.0, exponent)
+        self.low = low
+        self.scale = np.where(self.flat, width, np.expm1(safe * width))
+        self.inverse = 1.0 / safe
+
+    def __call__(self, u, cell):
+        scaled = u * self.scale[cell]
+        return self.low[cell] + np.where(self.flat[cell], scaled, np.log1p(scaled) * self.inverse[cell])
+
+
+class _Layout:
+    """Per-model, per-star-list arrays that every row of the draw reuses."""
+
+    def __init__(self, stars: StarTable, occurrence: OccurrenceModel):
+        n_classes, n_cells = occurrence.n_classes, occurrence.n_cells
+        self.n_cells = n_cells
+        self.star_class = np.asarray(stars.spectral_class, dtype=np.intp)
+        self.envelope = occurrence.envelope.ravel()
+        class_total = occurrence.envelope.sum(axis=1)
+        self.star_envelope = class_total[self.star_class]
+        self.cumulative = np.cumsum(self.envelope)
+        first_cell = np.arange(n_classes) * n_cells
+        starts = np.concatenate([[0.0], self.cumulative])[first_cell]
+        positive = occurrence.envelope > 0
+        last = first_cell + np.where(positive.any(axis=1), n_cells - 1 - np.argmax(positive[:, ::-1], axis=1), 0)
+        self.star_start = starts[self.star_class]
+        self.star_total = class_total[self.star_class]
+        self.star_last = last[self.star_class]
+        self.class_count = np.bincount(self.star_class, minlength=n_classes)
+        self.by_class = np.argsort(self.star_class, kind="stable")
+        self.class_offset = np.concatenate([[0], np.cumsum(self.class_count)[:-1]])
+
+
+def choose_cells(layout: _Layout, star: np.ndarray, u: np.ndarray) -> np.ndarray:
+    """Cell of each candidate: the inverse CDF of its host's class envelope at ``u``.
+
+    Parameters
+    ----------
+    layout : _Layout
+        Envelope arrays of the model and star list.
+    star : ndarray of int
+        Host star of each candidate.
+    u : ndarray
+        The candidates' cell uniforms in [0, 1).
+
+    Returns
+    -------
+    ndarray of int
+        Flat cell index (``class * n_cells + cell``); never a cell of zero envelope.
+    """
+    target = layout.star_start[star] + u * layout.star_total[star]
+    # side="right" skips cells of zero width; the cap only catches rounding at the class's top end
+    return np.minimum(np.searchsorted(layout.cumulative, target, side="right"), layout.star_last[star])
+
+
+def _excess(layout: _Layout, excess: np.ndarray, rng: np.random.Generator):
+    """Planets of one row above the envelope: Poisson per cell, hosts uniform in the class."""
+    n_cells = layout.n_cells
+    per_cell = rng.poisson(excess * np.repeat(layout.class_count, n_cells))
+    cell = np.repeat(np.arange(len(per_cell)), per_cell)
+    uniforms = rng.random((N_UNIFORMS, len(cell)))
+    klass = cell // n_cells
+    pick = np.minimum((uniforms[_CELL] * layout.class_count[klass]).astype(np.intp), layout.class_count[klass] - 1)
+    star = layout.by_class[layout.class_offset[klass] + pick]
+    return star, cell, uniforms
+
+
+def draw_planets(block: RowBlock, stars: StarTable, occurrence: OccurrenceModel,
+                 priors_resolved: PriorsSection) -> PlanetBatch:
+    """Every planet of every star for each row of a block, as one struct of arrays.
+
+    Parameters
+    ----------
+    block : RowBlock
+        The rows: seed, base indices, population sources and factor values (the occurrence
+        factors among them).
+    stars : StarTable
+        The star list.
+    occurrence : OccurrenceModel
+        The occurrence model.
+    priors_resolved : PriorsSection
+        Planet priors whose hyperparameters are numbers or arrays of shape ``(len(block),)``
+        (:func:`sweep.params.resolve` with the block's factor values).
+
+    Returns
+    -------
+    PlanetBatch
+        One entry per planet, ordered by row, with the row (within the block) and the star index.
+    """
+    layout = _Layout(stars, occurrence)
+    n_rows, n_stars = len(block), len(stars)
+    rates = occurrence.cell_rates(block.factors, n_rows).reshape(n_rows, -1)
+    excess = np.maximum(rates - layout.envelope, 0.0)
+    has_excess = (excess > 0).any(axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(layout.envelope > 0, rates / layout.envelope, 0.0)
+    all_stars = np.arange(n_stars)
+    rows, parts = [], []
+    for r in range(n_rows):  # one generator per row, keyed by what the row is; vectorised over stars
+        key = (block.seed, block.base_index[r], block.population_source[r])
+        rng = streams.row_generator(*key, streams.CANDIDATES)
+        counts = rng.poisson(layout.star_envelope)
+        uniforms = rng.random((N_UNIFORMS, int(counts.sum())))
+        star = np.repeat(all_stars, counts)
+        cell = choose_cells(layout, star, uniforms[_CELL])
+        keep = np.flatnonzero(uniforms[_ACCEPT] < ratio[r, cell])
+        rows.append(r)
+        parts.append((star[keep], cell[keep], uniforms[:, keep]))
+        if has_excess[r]:
+            rows.append(r)
+            parts.append(_excess(layout, excess[r], streams.row_generator(*key, streams.EXCESS)))
+    if not parts:
+        parts, rows = [(np.zeros(0, np.int64), np.zeros(0, np.intp), np.zeros((N_UNIFORMS, 0)))], [0]
+    row = np.repeat(np.asarray(rows, np.int64), [len(p[0]) for p in parts])
+    star = np.concatenate([p[0] for p in parts])
+    cell = np.concatenate([p[1] for p in parts])
+    u = np.concatenate([p[2] for p in parts], axis=1)
+    return _properties(np.asarray(row, np.int64), np.asarray(star, np.int64), cell, u, stars, occurrence,
+                       priors_resolved)
+
+
+def _properties(row, star, cell, u, stars: StarTable, occurrence: OccurrenceModel,
+                priors: PriorsSection) -> PlanetBatch:
+    """All planet properties from the uniforms (inverse CDFs) and the physics module."""
+    lnr = _WithinCell(occurrence.alpha, occurrence.lnr_lo, occurrence.lnr_hi)(u[_LNR], cell)
+    lnp = _WithinCell(occurrence.beta, occurrence.lnp_lo, occurrence.lnp_hi)(u[_LNP], cell)
+    radius, period = np.exp(lnr), np.exp(lnp)
+    inclination = np.arccos(1.0 - 2.0 * u[_COSI])
+    mean_anomaly = _TWO_PI * u[_MEAN_ANOMALY]
+    periapsis = _TWO_PI * u[_PERIAPSIS]
+    bond = priors.bond_albedo.ppf(u[_BOND], row)
+    if isinstance(priors.geometric_albedo, Prior):
+        geometric = priors.geometric_albedo.ppf(u[_GEOMETRIC], row)
+    else:
+        geometric = radiation.geometric_albedo_lambert(bond)
+    if priors.eccentricity is None:
+        eccentricity = np.zeros(len(row))
+    else:
+        eccentricity = priors.eccentricity.ppf(u[_ECC], row)
+    star_mass = stars.mass_msun[star]
+    mass = masses.chen_kipping2017_mass_mearth(radius)
+    sma = orbits.semi_major_axis_au(period, star_mass, mass)
+    separation, distance, phase = _sky_geometry_by_row(row, sma, eccentricity, inclination, periapsis,
+                                                       mean_anomaly)
+    # orbit-averaged flux of an eccentric orbit, L / (4 pi a^2 sqrt(1 - e^2)) (Williams & Pollard 2002):
+    # T_eq and insolation are orbit averages, T_eq at the distance a (1 - e^2)^(1/4) of equal mean flux
+    flux_factor = np.sqrt(1.0 - eccentricity * eccentricity)
+    insolation = habitability.insolation_searth(stars.luminosity_lsun[star], sma) / flux_factor
+    teq = radiation.equilibrium_temperature_K(stars.teff_K[star], stars.radius_rsun[star],
+                                              sma * np.sqrt(flux_factor), bond, priors.redistribution)
+    rv = masses.rv_semi_amplitude_ms(mass, star_mass, period, inclination, eccentricity)
+    return PlanetBatch(
+        row=row, star=star, radius_rearth=radius, period_d=period, semi_major_axis_au=sma,
+        eccentricity=eccentricity, inclination_rad=inclination, arg_periapsis_rad=periapsis,
+        mean_anomaly_rad=mean_anomaly, bond_albedo=np.asarray(bond, float),
+        geometric_albedo=np.asarray(geometric, float), teq_K=np.asarray(teq, float),
+        insolation_searth=np.asarray(insolation, float), mass_mearth=np.asarray(mass, float),
+        rv_semi_amplitude_ms=np.asarray(rv, float), separation_au=np.asarray(separation, float),
+        orbital_distance_au=np.asarray(distance, float), phase_angle_rad=np.asarray(phase, float),
+    )
+
+
+def _sky_geometry_by_row(row, sma, eccentricity, inclination, periapsis, mean_anomaly):
+    """:func:`sweep.physics.orbits.sky_geometry`, called per row where orbits are eccentric.
+
+    Kepler's equation is iterated until every element of the call has converged, so the last bits
+    of a planet's result could depend on which planets share the call; solving each row on its
+    own keeps a row's planets independent of how rows are grouped into blocks.
+    """
+    if not np.any(eccentricity > 0):
+        return orbits.sky_geometry(sma, eccentricity, inclination, periapsis, mean_anomaly)
+    out = [np.empty(len(row)) for _ in range(3)]
+    bounds = np.flatnonzero(np.diff(row)) + 1
+    for part in np.split(np.arange(len(row)), bounds):
+        results = orbits.sky_geometry(sma[part], eccentricity[part], inclination[part], periapsis[part],
+                                      mean_anomaly[part])
+        for target, values in zip(out, results):
+            target[part] = values
+    return tuple(out)
