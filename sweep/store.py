@@ -433,6 +433,11 @@ def _reader(path: Path, attrs: dict) -> CubeStore:
     return CubeStore(path, attrs["n_rows"], attrs["block_rows"], variables, attrs["spec_hash"])
 
 
+def open_store(path) -> CubeStore:
+    """A read-only handle on an existing store (for its completion record); takes no lock."""
+    return _reader(*_existing(path))
+
+
 def open_cube(path):
     """Open a store as a lazy :class:`xarray.Dataset` (dask arrays; units and spec in ``attrs``).
 
