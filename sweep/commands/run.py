@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+from pathlib import Path
 
 from sweep.errors import UserInputError
 
@@ -36,6 +37,8 @@ def add_parser(subparsers) -> None:
                         help="join a running dask scheduler (tcp://host:port) instead of starting a local cluster")
     parser.add_argument("--fresh", action="store_true",
                         help="start the store again from empty, even one written from another definition")
+    parser.add_argument("--report", action="store_true",
+                        help="when the run ends, write the report (HTML page, figures, tables) beside the store")
     parser.add_argument("--quiet", action="store_true", help="no progress line")
     parser.add_argument("--json", action="store_true", help="print the run summary as JSON")
     parser.set_defaults(handler=run)
@@ -51,8 +54,9 @@ def run(args) -> int:
     spec = load_spec(args.spec)
     summary = run_sweep(spec, output=args.output, fresh=args.fresh, progress=not args.quiet,
                         workers=args.workers, scheduler=args.scheduler)
+    report = _write_report(summary.path) if args.report else None
     if args.json:
-        print(json.dumps(summary.as_dict(), indent=2))
+        print(json.dumps(summary.as_dict() | ({"report": str(report)} if report else {}), indent=2))
         return 0
     print(
         f"{summary.path}: computed {summary.blocks_computed} blocks ({summary.rows_computed} rows) "
@@ -60,4 +64,18 @@ def run(args) -> int:
         f"{summary.blocks_skipped + summary.blocks_computed}/{summary.blocks_total} blocks done"
         + (f", {summary.retries} retried" if summary.retries else "")
     )
+    if report:
+        print(f"report: {report}")
     return 0
+
+
+def report_folder(store_path) -> Path:
+    """Where ``--report`` writes: beside the store, ``results/demo.zarr`` -> ``results/demo-report``."""
+    store_path = Path(store_path)
+    return store_path.with_name(store_path.name.removesuffix(".zarr") + "-report")
+
+
+def _write_report(store_path) -> Path:
+    from sweep.report import write_report
+
+    return write_report(store_path, report_folder(store_path))
