@@ -69,3 +69,6 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print(f"sweep {args.command}: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # output piped into a command that stopped reading (`| head`)
+        sys.stderr.close()
+        return 0
