@@ -15,7 +15,7 @@ import numpy as np
 from sweep import params
 from sweep.blocks import OutputVariable, RowBlock
 from sweep.catalogs import load_stars
-from sweep.concepts import build_concept
+from sweep.concepts import build_concept, call_detect
 from sweep.errors import UserInputError
 from sweep.occurrence import build_occurrence
 from sweep.planets import draw_planets
@@ -73,7 +73,8 @@ class PlanetYieldModel:
         planets = draw_planets(block, self.stars, self.occurrence, priors)
         detections = [
             [
-                concept.detect(planets, self.stars, params.resolve(section, f"concepts.{concept.name}", _values(block, point)))
+                call_detect(concept, planets, self.stars,
+                            params.resolve(section, f"concepts.{concept.name}", _values(block, point)), block)
                 for concept, section in zip(self.concepts, self.concept_sections)
             ]
             for point in self.grid_points()
@@ -85,6 +86,19 @@ class PlanetYieldModel:
         medians = {factor.name: np.array([factor.dist.median()]) for factor in self.occurrence.factors()}
         per_star = self.occurrence.expected_planets_per_star(medians)[0]  # (n_classes,)
         return float(per_star[self.stars.spectral_class].sum())
+
+    def observing_time_h(self) -> dict[str, float]:
+        """Integration time of one survey (one row) per concept at the factors' medians [h].
+
+        For ``sweep plan``; only concepts with a time model (``detection = "snr"``) are listed.
+        """
+        times = {}
+        for concept in self.concepts:
+            total = getattr(concept, "total_time_h", None)
+            hours = total(self.stars) if callable(total) else None
+            if hours is not None:
+                times[concept.name] = float(hours)
+        return times
 
 
 def _values(block: RowBlock, grid_point: dict):

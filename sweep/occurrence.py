@@ -239,9 +239,15 @@ class OccurrenceModel:
 
     # -- rates ---------------------------------------------------------------------------------
     def _rates_at(self, quantile):
+        """Rates at quantiles that broadcast against ``(n_classes, n_cells)``."""
         quantile = np.asarray(quantile, float)
         z = ndtri(quantile)
-        lognormal = self._base * np.exp(np.where(z < 0, self._sig_lo, self._sig_hi) * z)
+        lognormal = np.where(z < 0, self._sig_lo, self._sig_hi)
+        lognormal *= z
+        np.exp(lognormal, out=lognormal)
+        lognormal *= self._base
+        if not self._upper.any():
+            return lognormal
         return np.where(self._upper, self._base * quantile, lognormal)
 
     def cell_quantiles(self, factor_values: dict, n_rows: int | None = None) -> np.ndarray:
@@ -279,7 +285,10 @@ class OccurrenceModel:
         """
         if self.uncertainty == "none":
             return np.broadcast_to(self.nominal, (n_rows or 1, self.n_classes, self.n_cells)).copy()
-        return self._rates_at(self.cell_quantiles(factor_values, n_rows))
+        quantiles = self.cell_quantiles(factor_values, n_rows)
+        if self.uncertainty == "shared":  # one quantile per row: the inverse normal CDF once per row
+            quantiles = quantiles[:, :1, :1]
+        return self._rates_at(quantiles)  # broadcasts to (n_rows, n_classes, n_cells)
 
     def expected_planets_per_star(self, factor_values: dict, n_rows: int | None = None) -> np.ndarray:
         """Expected planets per star of each class, shape ``(n_rows, n_classes)`` (analytic)."""

@@ -55,6 +55,8 @@ UNIFORMS = ("cell", "accept", "ln_radius", "ln_period", "cos_inclination", "mean
 N_UNIFORMS = len(UNIFORMS)
 (_CELL, _ACCEPT, _LNR, _LNP, _COSI, _MEAN_ANOMALY, _PERIAPSIS, _BOND, _GEOMETRIC,
  _ECC) = range(N_UNIFORMS)
+#: Rows of the uniforms that become planet properties (all but the cell and acceptance uniforms).
+_PROPERTIES = slice(_LNR, N_UNIFORMS)
 
 _PARAM = TypeAdapter(params.Param)
 _TWO_PI = 2.0 * np.pi
@@ -136,6 +138,10 @@ class Prior(BaseModel):
         for key, value in self.arguments().items():
             value = np.asarray(value, dtype=float)
             arguments[key] = value[row] if value.ndim else float(value)
+        if self.dist == "uniform":  # scipy's own formula, q * scale + loc, without its argument checks
+            out = np.multiply(quantile, arguments.get("scale", 1.0))
+            out += arguments.get("loc", 0.0)
+            return out
         return getattr(scipy.stats, self.dist).ppf(quantile, **arguments)
 
 
@@ -195,7 +201,15 @@ class _WithinCell:
 
     def __call__(self, u, cell):
         scaled = u * self.scale[cell]
-        return self.low[cell] + np.where(self.flat[cell], scaled, np.log1p(scaled) * self.inverse[cell])
+        if not self.flat.any():  # power laws: every cell has an exponent
+            x = np.log1p(scaled, out=scaled)
+            x *= self.inverse[cell]
+        elif self.flat.all():  # binned tables: log-uniform in every cell
+            x = scaled
+        else:
+            x = np.where(self.flat[cell], scaled, np.log1p(scaled) * self.inverse[cell])
+        x += self.low[cell]
+        return x
 
 
 class _Layout:
@@ -278,66 +292,86 @@ def draw_planets(block: RowBlock, stars: StarTable, occurrence: OccurrenceModel,
         One entry per planet, ordered by row, with the row (within the block) and the star index.
     """
     layout = _Layout(stars, occurrence)
-    n_rows, n_stars = len(block), len(stars)
+    n_rows = len(block)
     rates = occurrence.cell_rates(block.factors, n_rows).reshape(n_rows, -1)
     excess = np.maximum(rates - layout.envelope, 0.0)
     has_excess = (excess > 0).any(axis=1)
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = np.where(layout.envelope > 0, rates / layout.envelope, 0.0)
-    all_stars = np.arange(n_stars)
-    rows, parts = [], []
+    # a candidate whose acceptance uniform is above its row's largest ratio is rejected whatever
+    # its cell: only the others are kept for the block-wide pass below (all of the kept ones, and
+    # only them, when the rates move together)
+    row_max = ratio.max(axis=1, initial=0.0)
+    counts, positions, picked, extra = [], [], [], []
     for r in range(n_rows):  # one generator per row, keyed by what the row is; vectorised over stars
         key = (block.seed, block.base_index[r], block.population_source[r])
         rng = streams.row_generator(*key, streams.CANDIDATES)
-        counts = rng.poisson(layout.star_envelope)
-        uniforms = rng.random((N_UNIFORMS, int(counts.sum())))
-        star = np.repeat(all_stars, counts)
-        cell = choose_cells(layout, star, uniforms[_CELL])
-        keep = np.flatnonzero(uniforms[_ACCEPT] < ratio[r, cell])
-        rows.append(r)
-        parts.append((star[keep], cell[keep], uniforms[:, keep]))
+        counts.append(rng.poisson(layout.star_envelope))
+        uniforms = rng.random((N_UNIFORMS, int(counts[-1].sum())))
+        maybe = np.flatnonzero(uniforms[_ACCEPT] < row_max[r])
+        positions.append(maybe)
+        picked.append(uniforms[:, maybe])
         if has_excess[r]:
-            rows.append(r)
-            parts.append(_excess(layout, excess[r], streams.row_generator(*key, streams.EXCESS)))
-    if not parts:
-        parts, rows = [(np.zeros(0, np.int64), np.zeros(0, np.intp), np.zeros((N_UNIFORMS, 0)))], [0]
-    row = np.repeat(np.asarray(rows, np.int64), [len(p[0]) for p in parts])
-    star = np.concatenate([p[0] for p in parts])
-    cell = np.concatenate([p[1] for p in parts])
-    u = np.concatenate([p[2] for p in parts], axis=1)
-    return _properties(np.asarray(row, np.int64), np.asarray(star, np.int64), cell, u, stars, occurrence,
-                       priors_resolved)
+            extra.append((r, *_excess(layout, excess[r], streams.row_generator(*key, streams.EXCESS))))
+    # host and row of every candidate left: its place in the block's (row, star) candidate counts
+    n_stars = len(stars)
+    ends = np.cumsum(np.concatenate(counts)) if counts else np.zeros(0, np.int64)
+    row_starts = np.concatenate([[0], ends[n_stars - 1::max(n_stars, 1)][:-1]]) if n_rows else np.zeros(0, np.int64)
+    place = np.concatenate([p + start for p, start in zip(positions, row_starts)] + [np.zeros(0, np.int64)])
+    row, star = np.divmod(np.searchsorted(ends, place, side="right"), max(n_stars, 1))
+    u = np.concatenate(picked + [np.zeros((N_UNIFORMS, 0))], axis=1)
+    cell = choose_cells(layout, star, u[_CELL])
+    kept = u[_ACCEPT] < ratio[row, cell]
+    if not kept.all():
+        row, star, cell, u = row[kept], star[kept], cell[kept], u[:, kept]
+    u = u[_PROPERTIES]
+    if extra:  # planets above the envelope go after the row's other planets
+        row = np.concatenate([row] + [np.full(len(x[1]), x[0]) for x in extra])
+        star = np.concatenate([star] + [x[1] for x in extra])
+        cell = np.concatenate([cell] + [x[2] for x in extra])
+        u = np.concatenate([u] + [x[3][_PROPERTIES] for x in extra], axis=1)
+        order = np.argsort(row, kind="stable")
+        row, star, cell, u = row[order], star[order], cell[order], u[:, order]
+    return _properties(row.astype(np.int64, copy=False), star.astype(np.int64, copy=False), cell, u, stars,
+                       occurrence, priors_resolved)
 
 
 def _properties(row, star, cell, u, stars: StarTable, occurrence: OccurrenceModel,
                 priors: PriorsSection) -> PlanetBatch:
-    """All planet properties from the uniforms (inverse CDFs) and the physics module."""
-    lnr = _WithinCell(occurrence.alpha, occurrence.lnr_lo, occurrence.lnr_hi)(u[_LNR], cell)
-    lnp = _WithinCell(occurrence.beta, occurrence.lnp_lo, occurrence.lnp_hi)(u[_LNP], cell)
-    radius, period = np.exp(lnr), np.exp(lnp)
-    inclination = np.arccos(1.0 - 2.0 * u[_COSI])
-    mean_anomaly = _TWO_PI * u[_MEAN_ANOMALY]
-    periapsis = _TWO_PI * u[_PERIAPSIS]
-    bond = priors.bond_albedo.ppf(u[_BOND], row)
+    """All planet properties from the uniforms (the rows :data:`_PROPERTIES`) and the physics module."""
+    u_lnr, u_lnp, u_cosi, u_mean_anomaly, u_periapsis, u_bond, u_geometric, u_ecc = u
+    lnr = _WithinCell(occurrence.alpha, occurrence.lnr_lo, occurrence.lnr_hi)(u_lnr, cell)
+    lnp = _WithinCell(occurrence.beta, occurrence.lnp_lo, occurrence.lnp_hi)(u_lnp, cell)
+    radius, period = np.exp(lnr, out=lnr), np.exp(lnp, out=lnp)
+    cos_i = np.multiply(u_cosi, -2.0)
+    cos_i += 1.0
+    sin_i = np.sqrt((1.0 - cos_i) * (1.0 + cos_i))  # sin(arccos c) >= 0, accurate near c = +-1
+    inclination = np.arccos(cos_i)
+    mean_anomaly = _TWO_PI * u_mean_anomaly
+    periapsis = _TWO_PI * u_periapsis
+    bond = priors.bond_albedo.ppf(u_bond, row)
     if isinstance(priors.geometric_albedo, Prior):
-        geometric = priors.geometric_albedo.ppf(u[_GEOMETRIC], row)
+        geometric = priors.geometric_albedo.ppf(u_geometric, row)
     else:
         geometric = radiation.geometric_albedo_lambert(bond)
-    if priors.eccentricity is None:
-        eccentricity = np.zeros(len(row))
-    else:
-        eccentricity = priors.eccentricity.ppf(u[_ECC], row)
+    circular = priors.eccentricity is None
+    eccentricity = np.zeros(len(row)) if circular else priors.eccentricity.ppf(u_ecc, row)
     star_mass = stars.mass_msun[star]
     mass = masses.chen_kipping2017_mass_mearth(radius)
     sma = orbits.semi_major_axis_au(period, star_mass, mass)
-    separation, distance, phase = _sky_geometry_by_row(row, sma, eccentricity, inclination, periapsis,
-                                                       mean_anomaly)
-    # orbit-averaged flux of an eccentric orbit, L / (4 pi a^2 sqrt(1 - e^2)) (Williams & Pollard 2002):
-    # T_eq and insolation are orbit averages, T_eq at the distance a (1 - e^2)^(1/4) of equal mean flux
-    flux_factor = np.sqrt(1.0 - eccentricity * eccentricity)
-    insolation = habitability.insolation_searth(stars.luminosity_lsun[star], sma) / flux_factor
-    teq = radiation.equilibrium_temperature_K(stars.teff_K[star], stars.radius_rsun[star],
-                                              sma * np.sqrt(flux_factor), bond, priors.redistribution)
+    separation, distance, phase = orbits.sky_geometry(sma, eccentricity, inclination, periapsis, mean_anomaly,
+                                                       cos_inclination=cos_i, sin_inclination=sin_i)
+    insolation = habitability.insolation_searth(stars.luminosity_lsun[star], sma)
+    if circular:  # the factors below are exactly 1
+        teq_distance = sma
+    else:
+        # orbit-averaged flux of an eccentric orbit, L / (4 pi a^2 sqrt(1 - e^2)) (Williams & Pollard 2002):
+        # T_eq and insolation are orbit averages, T_eq at the distance a (1 - e^2)^(1/4) of equal mean flux
+        flux_factor = np.sqrt(1.0 - eccentricity * eccentricity)
+        insolation = insolation / flux_factor
+        teq_distance = sma * np.sqrt(flux_factor)
+    teq = radiation.equilibrium_temperature_K(stars.teff_K[star], stars.radius_rsun[star], teq_distance, bond,
+                                              priors.redistribution)
     rv = masses.rv_semi_amplitude_ms(mass, star_mass, period, inclination, eccentricity)
     return PlanetBatch(
         row=row, star=star, radius_rearth=radius, period_d=period, semi_major_axis_au=sma,
@@ -348,22 +382,3 @@ def _properties(row, star, cell, u, stars: StarTable, occurrence: OccurrenceMode
         rv_semi_amplitude_ms=np.asarray(rv, float), separation_au=np.asarray(separation, float),
         orbital_distance_au=np.asarray(distance, float), phase_angle_rad=np.asarray(phase, float),
     )
-
-
-def _sky_geometry_by_row(row, sma, eccentricity, inclination, periapsis, mean_anomaly):
-    """:func:`sweep.physics.orbits.sky_geometry`, called per row where orbits are eccentric.
-
-    Kepler's equation is iterated until every element of the call has converged, so the last bits
-    of a planet's result could depend on which planets share the call; solving each row on its
-    own keeps a row's planets independent of how rows are grouped into blocks.
-    """
-    if not np.any(eccentricity > 0):
-        return orbits.sky_geometry(sma, eccentricity, inclination, periapsis, mean_anomaly)
-    out = [np.empty(len(row)) for _ in range(3)]
-    bounds = np.flatnonzero(np.diff(row)) + 1
-    for part in np.split(np.arange(len(row)), bounds):
-        results = orbits.sky_geometry(sma[part], eccentricity[part], inclination[part], periapsis[part],
-                                      mean_anomaly[part])
-        for target, values in zip(out, results):
-            target[part] = values
-    return tuple(out)

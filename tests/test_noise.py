@@ -1,4 +1,4 @@
-"""Tests of sweep.physics.noise: analytic limits, exact inversions, scalings and priors."""
+"""Tests of sweep.physics.noise and sweep.physics.sky: analytic limits, exact inversions, scalings, priors."""
 
 import math
 
@@ -13,6 +13,7 @@ from scipy.integrate import dblquad
 
 from sweep.physics import noise as nz
 from sweep.physics import photometry as ph
+from sweep.physics import sky
 
 RATE = st.floats(1e-3, 1e4)
 SMALL = settings(max_examples=150, deadline=None)
@@ -175,7 +176,7 @@ def test_more_exozodi_never_raises_snr(z, factor, sep_au, lum, band, nuller):
     c, w = band
     rates = []
     for level in (z, z * factor):
-        exo = nz.exozodi_uJy_sr(c, w, level, sep_au, lum, 5772.0 * lum ** 0.125)
+        exo = sky.exozodi_uJy_sr(c, w, level, sep_au, lum, 5772.0 * lum ** 0.125)
         kw = dict(center_um=c, width_um=w, exozodi_uJy_sr=exo)
         if nuller:
             r = nz.interferometer_rates(collector_diameter_m=2.0, **{**NULLER, **kw})
@@ -241,33 +242,33 @@ def test_coronagraph_leak_and_detector_rate():
 def test_zodi_visible_values():
     # Leinert et al. 1998, A&AS 127, 1: ~60 S10 at the ecliptic pole (V ~ 23.3 mag/arcsec^2) and
     # ~260 S10 in the ecliptic at 90 deg elongation (V ~ 21.7); from memory, 0.1 mag
-    assert nz.zodi_visible_mag_arcsec2(90.0) == pytest.approx(23.3, abs=0.1)
-    assert nz.zodi_visible_mag_arcsec2(0.0) == pytest.approx(21.7, abs=0.1)
+    assert sky.zodi_visible_mag_arcsec2(90.0) == pytest.approx(23.3, abs=0.1)
+    assert sky.zodi_visible_mag_arcsec2(0.0) == pytest.approx(21.7, abs=0.1)
     # 1 S10 = 27.78 V mag/arcsec^2 (definition: a V = 10 star per square degree)
-    assert nz.S10_V_MAG_ARCSEC2 == pytest.approx(27.78, abs=0.005)
+    assert sky.S10_V_MAG_ARCSEC2 == pytest.approx(27.78, abs=0.005)
     beta = np.linspace(-90.0, 90.0, 181)
-    mu = nz.zodi_visible_mag_arcsec2(beta)
+    mu = sky.zodi_visible_mag_arcsec2(beta)
     np.testing.assert_array_equal(mu, mu[::-1])  # symmetric about the ecliptic
     assert np.all(np.diff(mu[90:]) >= 0.0)  # fainter towards the pole
     # unknown latitude: the median |beta| of isotropic directions, 30 deg
-    assert nz.zodi_visible_mag_arcsec2(np.nan) == nz.zodi_visible_mag_arcsec2(30.0)
+    assert sky.zodi_visible_mag_arcsec2(np.nan) == sky.zodi_visible_mag_arcsec2(30.0)
 
 
 def test_local_zodi_v_band_matches_visible_fit():
     # consistency: in V the model is the fitted V surface brightness (thermal part negligible)
     beta = np.array([0.0, 20.0, 55.0, 90.0])
-    i_v = nz.local_zodi_uJy_sr(ph.BAND_CENTERS_UM["V"], ph.BAND_WIDTHS_UM["V"], beta)
+    i_v = sky.local_zodi_uJy_sr(ph.BAND_CENTERS_UM["V"], ph.BAND_WIDTHS_UM["V"], beta)
     np.testing.assert_allclose(ph.uJy_sr_to_surface_brightness(i_v, "V"),
-                               nz.zodi_visible_mag_arcsec2(beta), atol=1e-9)
+                               sky.zodi_visible_mag_arcsec2(beta), atol=1e-9)
 
 
 def test_local_zodi_mid_infrared_is_grey_body():
     # reference library: astropy BlackBody at 265 K times tau = 7.1e-8 at the ecliptic pole
     # (grey-body fit to Kelsall et al. 1998, from memory); scattered light is < 1e-3 at 10 um
     ref = 7.1e-8 * BlackBody(265.0 * u.K)(10.0 * u.um).to_value(u.uJy / u.sr)
-    assert nz.local_zodi_uJy_sr(10.0, 1e-3, 90.0) == pytest.approx(ref, rel=1e-3)
+    assert sky.local_zodi_uJy_sr(10.0, 1e-3, 90.0) == pytest.approx(ref, rel=1e-3)
     # same latitude profile as the visible: ecliptic / pole = 259 / 60 S10
-    ratio = nz.local_zodi_uJy_sr(10.0, 1e-3, 0.0) / nz.local_zodi_uJy_sr(10.0, 1e-3, 90.0)
+    ratio = sky.local_zodi_uJy_sr(10.0, 1e-3, 0.0) / sky.local_zodi_uJy_sr(10.0, 1e-3, 90.0)
     assert ratio == pytest.approx(259.0 / 60.0, rel=1e-3)
 
 
@@ -275,23 +276,23 @@ def test_exozodi_one_zodi_solar_twin_in_v():
     # Stark et al. 2014, ApJ 795, 122 (from memory): 1 zodi = 22 V mag/arcsec^2 at the
     # Earth-equivalent distance of a solar twin, face-on
     c, w = ph.BAND_CENTERS_UM["V"], ph.BAND_WIDTHS_UM["V"]
-    i = nz.exozodi_uJy_sr(c, w, 1.0, 1.0, 1.0, 5772.0)
+    i = sky.exozodi_uJy_sr(c, w, 1.0, 1.0, 1.0, 5772.0)
     assert ph.uJy_sr_to_surface_brightness(i, "V") == pytest.approx(22.0, abs=0.01)
 
 
 def test_exozodi_scalings():
     c, w = 0.55, 0.1
-    base = nz.exozodi_uJy_sr(c, w, 1.0, 1.0, 1.0, 5772.0)
+    base = sky.exozodi_uJy_sr(c, w, 1.0, 1.0, 1.0, 5772.0)
     # analytic: proportional to the level
-    assert nz.exozodi_uJy_sr(c, w, 7.5, 1.0, 1.0, 5772.0) == pytest.approx(7.5 * base, rel=1e-14)
+    assert sky.exozodi_uJy_sr(c, w, 7.5, 1.0, 1.0, 5772.0) == pytest.approx(7.5 * base, rel=1e-14)
     # analytic: scattered light ~ tau(r) x stellar flux(r) ~ r^-0.34 r^-2 (thermal negligible in V)
-    assert nz.exozodi_uJy_sr(c, w, 1.0, 2.0, 1.0, 5772.0) == pytest.approx(
+    assert sky.exozodi_uJy_sr(c, w, 1.0, 2.0, 1.0, 5772.0) == pytest.approx(
         base * 2.0 ** -2.34, rel=1e-9)
     # analytic: at the Earth-equivalent distance sqrt(L) a star of the same temperature has the
     # same disk brightness, scattered and thermal
     for cc, ww in [(c, w), (10.0, 2.0), (20.0, 4.0)]:
-        assert nz.exozodi_uJy_sr(cc, ww, 1.0, 2.0, 4.0, 5772.0) == pytest.approx(
-            nz.exozodi_uJy_sr(cc, ww, 1.0, 1.0, 1.0, 5772.0), rel=1e-12)
+        assert sky.exozodi_uJy_sr(cc, ww, 1.0, 2.0, 4.0, 5772.0) == pytest.approx(
+            sky.exozodi_uJy_sr(cc, ww, 1.0, 1.0, 1.0, 5772.0), rel=1e-12)
 
 
 def test_exozodi_thermal_is_grey_body():
@@ -302,7 +303,7 @@ def test_exozodi_thermal_is_grey_body():
     x = r / math.sqrt(lum)
     ref = 2 * 7.1e-8 * x**-0.34 * BlackBody(286.0 * x**-0.467 * u.K)(15.0 * u.um).to_value(
         u.uJy / u.sr)
-    assert nz.exozodi_uJy_sr(15.0, 1.5e-3, 1.0, r, lum, 5000.0) == pytest.approx(ref, rel=1e-3)
+    assert sky.exozodi_uJy_sr(15.0, 1.5e-3, 1.0, r, lum, 5000.0) == pytest.approx(ref, rel=1e-3)
 
 
 # ---------------------------------------------------------------------------------------------

@@ -89,6 +89,9 @@ def make_plan(spec, output=None) -> dict:
     expected = getattr(model, "expected_planets_per_row", None)
     if callable(expected):
         plan["expected_planets_per_row"] = float(expected())
+    observing = getattr(model, "observing_time_h", None)
+    if callable(observing) and (times := observing()):
+        plan["observing_time_h"] = times
     return plan
 
 
@@ -129,6 +132,10 @@ def run(args) -> int:
     ]
     if "expected_planets_per_row" in plan:
         lines.append(f"planets     {plan['expected_planets_per_row']:.4g} expected per row")
+    if "observing_time_h" in plan:
+        lines.append("time        " + "; ".join(f"{name} {_duration(hours * 3600)}"
+                                               for name, hours in plan["observing_time_h"].items())
+                     + " of integration per survey (each row), factors at their medians")
     lines += [
         f"variables   " + "; ".join(f"{name}({', '.join(dims)})" for name, dims in plan["variables"].items()),
         f"store       {plan['store']}, up to {_size(plan['store_bytes'])} (uncompressed)",

@@ -6,6 +6,7 @@ import argparse
 import json
 from pathlib import Path
 
+from sweep.cluster import add_cluster_arguments, batch_client
 from sweep.errors import UserInputError
 
 
@@ -41,6 +42,7 @@ def add_parser(subparsers) -> None:
                         help="when the run ends, write the report (HTML page, figures, tables) beside the store")
     parser.add_argument("--quiet", action="store_true", help="no progress line")
     parser.add_argument("--json", action="store_true", help="print the run summary as JSON")
+    add_cluster_arguments(parser)
     parser.set_defaults(handler=run)
 
 
@@ -51,9 +53,17 @@ def run(args) -> int:
 
     if args.scheduler and args.workers:
         raise UserInputError("--workers sets the local cluster's size; with --scheduler the scheduler's workers run the tasks")
+    if args.cluster and args.scheduler:
+        raise UserInputError("--cluster starts its own scheduler; leave out --scheduler")
+    if args.cluster and args.workers:
+        raise UserInputError("--workers sizes the local cluster; with --cluster use --jobs")
     spec = load_spec(args.spec)
-    summary = run_sweep(spec, output=args.output, fresh=args.fresh, progress=not args.quiet,
-                        workers=args.workers, scheduler=args.scheduler)
+    if args.cluster:
+        with batch_client(args) as client:
+            summary = run_sweep(spec, output=args.output, client=client, fresh=args.fresh, progress=not args.quiet)
+    else:
+        summary = run_sweep(spec, output=args.output, fresh=args.fresh, progress=not args.quiet,
+                            workers=args.workers, scheduler=args.scheduler)
     report = _write_report(summary.path) if args.report else None
     if args.json:
         print(json.dumps(summary.as_dict() | ({"report": str(report)} if report else {}), indent=2))

@@ -8,6 +8,13 @@ A concept turns the planets of a block into detection masks, one per band::
 ``resolved_section`` is the concept's validated section after :func:`sweep.params.resolve`: every
 numeric field is a float (fixed, or the current grid point) or an array of shape ``(n_rows,)``
 (an uncertain factor, one value per row of the block); index such arrays by ``planets.row``.
+Concepts that draw per-star properties (the exozodi level of ``detection = "snr"``) also take the
+block, ``detect(planets, stars, resolved_section, block=block)``; :func:`call_detect` passes it to
+the concepts that accept it.
+
+Two detection models, chosen per concept by ``detection``: ``"threshold"`` (the default: a flux
+limit per band) and ``"snr"`` (a photon-noise budget in the concept's ``noise`` table,
+:mod:`sweep.concepts.noise_budget`, ``docs/noise_model.md``).
 
 Built-in kinds: ``"interferometer"`` (:mod:`sweep.concepts.interferometer`, thermal emission) and
 ``"coronagraph"`` (:mod:`sweep.concepts.coronagraph`, reflected light).
@@ -34,8 +41,10 @@ worker (a shared file system), a module importable there (same environment and `
 
 from __future__ import annotations
 
+import functools
 import importlib
 import importlib.abc
+import inspect
 import importlib.util
 import re
 import sys
@@ -58,6 +67,7 @@ __all__ = [
     "LastResult",
     "build_concept",
     "cache_key",
+    "call_detect",
     "concept_schema",
     "is_scalar",
     "kinds",
@@ -203,7 +213,7 @@ class Concept(ABC):
         return [nominal(band.center_um) for band in self.section.bands]
 
     @abstractmethod
-    def detect(self, planets, stars, params) -> np.ndarray:
+    def detect(self, planets, stars, params, block=None) -> np.ndarray:
         """Detection masks.
 
         Parameters
@@ -215,12 +225,23 @@ class Concept(ABC):
         params : BaseModel
             This concept's section after :func:`sweep.params.resolve` (floats or ``(n_rows,)``
             arrays).
+        block : sweep.blocks.RowBlock, optional
+            The block the planets were drawn for (its rows key per-star random draws). Without it,
+            per-star draws take their population median.
 
         Returns
         -------
         ndarray of bool, shape (n_bands, n_planets)
             True where the planet is detected in the band.
         """
+
+    def total_time_h(self, stars) -> float | None:
+        """Observing time one survey (one row) implies at the nominal values [h], or None.
+
+        None for concepts without a time model (threshold detection); see
+        :meth:`sweep.concepts.noise_budget.SnrDetection.total_time_h`.
+        """
+        return None
 
 
 _REGISTRY: dict[str, tuple[type[BaseModel], Callable[[BaseModel], Concept]]] = {}
@@ -402,6 +423,24 @@ def parse_concept(raw: dict, where: str, base_dir: Path | str | None = None) -> 
         raise UserInputError(_one_line(exc, where, schema)) from None
 
 
+@functools.lru_cache(maxsize=None)
+def _takes_block(cls: type) -> bool:
+    try:
+        signature = inspect.signature(cls.detect)
+    except (TypeError, ValueError):
+        return False
+    return any(p.name == "block" or p.kind is inspect.Parameter.VAR_KEYWORD
+               for p in signature.parameters.values())
+
+
+def call_detect(concept, planets, stars, params, block=None) -> np.ndarray:
+    """``concept.detect(planets, stars, params, block=block)``, or without ``block`` for concepts
+    (plug-ins written before it existed) whose ``detect`` does not take it."""
+    if block is not None and _takes_block(type(concept)):
+        return concept.detect(planets, stars, params, block=block)
+    return concept.detect(planets, stars, params)
+
+
 def build_concept(section: BaseModel) -> Concept:
     """The :class:`Concept` of a validated section (from :func:`parse_concept`)."""
     plugin = _PLUGINS_BY_SCHEMA.get(type(section))
@@ -412,5 +451,6 @@ def build_concept(section: BaseModel) -> Concept:
 
 
 # Built-in kinds register themselves on import.
+from sweep.concepts import noise_budget as _noise_budget  # noqa: E402,F401
 from sweep.concepts import coronagraph as _coronagraph  # noqa: E402,F401
 from sweep.concepts import interferometer as _interferometer  # noqa: E402,F401

@@ -32,6 +32,28 @@ Example section (invented)::
       { name = "I", center_um = 0.80, width_um = 0.16, flux_limit_uJy = 0.005 },
     ]
 
+With ``detection = "snr"`` the flux condition is replaced by a photon-noise budget (the
+``noise`` table, :mod:`sweep.concepts.noise_budget`): the planet's rate, the stellar leakage
+``raw_contrast * N_star`` (the raw contrast is taken as constant across the dark hole), local
+zodiacal and exozodiacal light in a photometric aperture of radius ``aperture_radius_lod *
+lambda / D``, and the optional instrument background give an SNR after the integration time; the
+contrast floor becomes optional there. Example (invented)::
+
+    [[concepts]]
+    name = "mirror"
+    kind = "coronagraph"
+    detection = "snr"
+    aperture_diameter_m = 6.0
+    inner_working_angle_lod = 3.0
+    outer_working_angle_lod = 30.0
+    throughput = 0.2
+    bands = [ { name = "V", center_um = 0.55, width_um = 0.11 } ]
+
+    [concepts.noise]
+    integration_time_h = { dist = "loguniform", a = 5.0, b = 50.0 }
+    raw_contrast = 1e-10
+    exozodi = { median_zodi = 3.0, sigma_ln = 1.0, scale = { dist = "loguniform", a = 0.3, b = 3.0 } }
+
 References
 ----------
 .. [1] Traub, W. A. & Oppenheimer, B. R. 2010, in Exoplanets (ed. S. Seager, Univ. of Arizona
@@ -57,10 +79,13 @@ from sweep.concepts import (
     per_planet,
     register,
 )
+from sweep.concepts.noise_budget import NoiseSchema, SnrDetection, check_detection_keys, instrument_rate
 from sweep.errors import UserInputError
 from sweep.params import FractionParam, Param, PositiveParam, bounds
+from sweep.physics import noise as nz
 from sweep.physics import radiation
 from sweep.physics._constants import AU_M, PC_M, R_SUN_M
+from sweep.physics.photometry import circular_area_m2, resolution_element_sr
 
 
 class CoronagraphBand(BandSchema):
@@ -82,8 +107,8 @@ class CoronagraphBand(BandSchema):
 
     @model_validator(mode="after")
     def _one_limit(self):
-        if (self.flux_limit_uJy is None) == (self.limiting_mag is None):
-            raise ValueError(f"band {self.name!r}: give exactly one of flux_limit_uJy and limiting_mag")
+        if self.flux_limit_uJy is not None and self.limiting_mag is not None:
+            raise ValueError(f"band {self.name!r}: give only one of flux_limit_uJy and limiting_mag")
         if self.zero_point_Jy is None and self.limiting_mag is not None:
             raise ValueError(f"band {self.name!r}: limiting_mag needs zero_point_Jy to become a flux density")
         if self.zero_point_Jy is None and self.star_magnitude is not None:
@@ -91,14 +116,32 @@ class CoronagraphBand(BandSchema):
         return self
 
 
+class CoronagraphNoise(NoiseSchema):
+    """The photon-noise budget of a coronagraph (``detection = "snr"``)."""
+
+    raw_contrast: PositiveParam = Field(
+        description="Stellar leakage in the planet's aperture as a fraction of the star's light [1]."
+    )
+    aperture_radius_lod: PositiveParam = Field(
+        default=0.7, description="Radius of the photometric aperture [lambda/D]."
+    )
+
+
 class CoronagraphSchema(ConceptSchema):
     """Section of a coronagraph concept."""
 
     kind: Literal["coronagraph"]
+    detection: Literal["threshold", "snr"] = Field(
+        default="threshold",
+        description="Detection model: 'threshold' (band flux limits) or 'snr' (the noise table).",
+    )
     aperture_diameter_m: PositiveParam = Field(description="Telescope aperture diameter [m].")
     inner_working_angle_lod: PositiveParam = Field(description="Inner working angle [lambda/D].")
     outer_working_angle_lod: PositiveParam = Field(description="Outer working angle [lambda/D].")
-    contrast_floor: PositiveParam = Field(description="Faintest planet/star flux ratio detected [1].")
+    contrast_floor: PositiveParam | None = Field(
+        default=None,
+        description="Faintest planet/star flux ratio detected [1]; required for detection = 'threshold'.",
+    )
     throughput: FractionParam = Field(description="Fraction of the planet's light reaching the detector [1].")
     sensitivity_reference_diameter_m: PositiveParam | None = Field(
         default=None,
@@ -108,6 +151,16 @@ class CoronagraphSchema(ConceptSchema):
         ),
     )
     bands: list[CoronagraphBand] = Field(min_length=1, description="Observing bands.")
+    noise: CoronagraphNoise | None = Field(
+        default=None, description="Photon-noise budget; required for detection = 'snr'."
+    )
+
+    @model_validator(mode="after")
+    def _detection_keys(self):
+        check_detection_keys(self, ("flux_limit_uJy", "limiting_mag"), ("sensitivity_reference_diameter_m",))
+        if self.detection == "threshold" and self.contrast_floor is None:
+            raise ValueError("contrast_floor is required for detection = 'threshold'")
+        return self
 
     @model_validator(mode="after")
     def _inner_below_outer(self):
@@ -121,7 +174,7 @@ class CoronagraphSchema(ConceptSchema):
         return self
 
 
-class Coronagraph(Concept):
+class Coronagraph(SnrDetection, Concept):
     """Reflected-light detections of a coronagraph (see the module docstring)."""
 
     Schema = CoronagraphSchema
@@ -130,6 +183,7 @@ class Coronagraph(Concept):
         super().__init__(section)
         self._star_cache = [LastResult() for _ in section.bands]
         self._planet_cache = LastResult()
+        self._init_snr(len(section.bands))
 
     def contrast(self, planets) -> np.ndarray:
         """Planet/star flux ratio p Phi(alpha) (R_p / r)^2 of every planet [1] (grey: all bands)."""
@@ -201,25 +255,64 @@ class Coronagraph(Concept):
             return per_planet(band.flux_limit_uJy, row)
         return per_planet(band.zero_point_Jy, row) * 1e6 * 10.0 ** (-0.4 * per_planet(band.limiting_mag, row))
 
-    def detect(self, planets, stars, params) -> np.ndarray:
+    def inside(self, planets, stars, params) -> np.ndarray:
+        """Inside the working angles and above the contrast floor (if any): bool, (n_bands, n_planets)."""
         row = planets.row
         contrast, theta = self._planet_terms(planets, stars)
         diameter = per_planet(params.aperture_diameter_m, row)
         inner_per_um = per_planet(params.inner_working_angle_lod, row) * 1e-6 / diameter
         outer_per_um = per_planet(params.outer_working_angle_lod, row) * 1e-6 / diameter
-        deep_enough = contrast >= per_planet(params.contrast_floor, row)
+        out = np.empty((len(params.bands), len(planets)), dtype=bool)
+        for i, band in enumerate(params.bands):
+            center = per_planet(band.center_um, row)
+            np.greater_equal(theta, inner_per_um * center, out=out[i])
+            out[i] &= theta <= outer_per_um * center
+        if params.contrast_floor is not None:
+            out &= contrast >= per_planet(params.contrast_floor, row)
+        return out
+
+    def detect(self, planets, stars, params, block=None) -> np.ndarray:
+        if params.detection == "snr":
+            return self.detect_snr(planets, stars, params, block)
+        row = planets.row
+        contrast, _ = self._planet_terms(planets, stars)
+        diameter = per_planet(params.aperture_diameter_m, row)
         collected = contrast * per_planet(params.throughput, row)
         scale = 1.0
         if params.sensitivity_reference_diameter_m is not None:
             scale = (per_planet(params.sensitivity_reference_diameter_m, row) / diameter) ** 2
-        out = np.empty((len(params.bands), len(planets)), dtype=bool)
+        out = self.inside(planets, stars, params)
         for i, band in enumerate(params.bands):
-            center = per_planet(band.center_um, row)
             star_flux = self._star_flux_at_planets(i, band, planets, stars)
-            np.greater_equal(collected * star_flux, self.flux_limit_uJy(band, row) * scale, out=out[i])
-            out[i] &= deep_enough
-            out[i] &= theta >= inner_per_um * center
-            out[i] &= theta <= outer_per_um * center
+            out[i] &= collected * star_flux >= self.flux_limit_uJy(band, row) * scale
+        return out
+
+    def noise_rates(self, planets, stars, params, block=None) -> list:
+        """Count rates of every planet in every band (``detection = "snr"``).
+
+        Returns
+        -------
+        list of sweep.physics.noise.NoiseRates
+            One per band, each field of shape (n_planets,) [photons s^-1].
+        """
+        row, noise = planets.row, params.noise
+        contrast, _ = self._planet_terms(planets, stars)
+        diameter = per_planet(params.aperture_diameter_m, row)
+        throughput = per_planet(params.throughput, row)
+        radius_lod = per_planet(noise.aperture_radius_lod, row)
+        raw_contrast = per_planet(noise.raw_contrast, row)
+        zodis = self.exozodi_zodi(planets, stars, params, block)
+        out = []
+        for i, band in enumerate(params.bands):
+            center, width = per_planet(band.center_um, row), per_planet(band.width_um, row)
+            star_flux = self._star_flux_at_planets(i, band, planets, stars)
+            omega = resolution_element_sr(center, diameter, radius_lod)
+            instrument = instrument_rate(noise.instrument, row, center, width, omega,
+                                         circular_area_m2(diameter), throughput)
+            out.append(nz.coronagraph_rates(
+                contrast * star_flux, star_flux, raw_contrast, center, width, diameter, throughput,
+                self.local_zodi_uJy_sr(i, band, planets, stars),
+                zodis * self.exozodi_unit_uJy_sr(i, band, planets, stars), instrument, radius_lod))
         return out
 
 

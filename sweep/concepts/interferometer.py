@@ -29,6 +29,26 @@ Example section (invented)::
       { name = "Q18", center_um = 18.0, width_um = 4.0, flux_limit_uJy = { dist = "loguniform", a = 0.2, b = 1.0 } },
     ]
 
+With ``detection = "snr"`` the flux condition is replaced by a photon-noise budget (the
+``noise`` table, :mod:`sweep.concepts.noise_budget`): the planet at peak transmission through
+``n_collectors`` collectors and ``throughput``; the stellar leakage, null depth plus the geometric
+leakage of the star's finite disk ``(pi^2 / 16) (theta_star B / lambda)^2``; local zodiacal and
+exozodiacal light in one spatial mode per collector, times the mean fringe transmission
+``extended_transmission``; and the optional instrument background. Example (invented)::
+
+    [[concepts]]
+    name = "nuller"
+    kind = "interferometer"
+    detection = "snr"
+    collector_diameter_m = 2.0
+    baseline_m = 20.0
+    bands = [ { name = "N10", center_um = 10.0, width_um = 2.0 } ]
+
+    [concepts.noise]
+    integration_time_h = 20.0
+    null_depth = { dist = "loguniform", a = 1e-6, b = 1e-4 }
+    throughput = 0.05
+
 References
 ----------
 .. [1] Bracewell, R. N. 1978, Nature 274, 780 (nulling interferometry; doi:10.1038/274780a0).
@@ -55,16 +75,33 @@ from sweep.concepts import (
     per_planet,
     register,
 )
-from sweep.params import PositiveParam, bounds
+from sweep.concepts.noise_budget import NoiseSchema, SnrDetection, check_detection_keys, instrument_rate
+from sweep.params import FractionParam, PositiveParam, bounds
 from sweep.physics import habitability, radiation
-from sweep.physics._constants import AU_M, PC_M, R_EARTH_M
+from sweep.physics import noise as nz
+from sweep.physics._constants import AU_M, PC_M, R_EARTH_M, R_SUN_M
+from sweep.physics.photometry import SINGLE_MODE_RADIUS_LOD, circular_area_m2, resolution_element_sr
 
 
 class InterferometerBand(BandSchema):
     """A band of the interferometer and its point-source sensitivity."""
 
-    flux_limit_uJy: PositiveParam = Field(
-        description="Faintest point source detected in the reference integration time [uJy]."
+    flux_limit_uJy: PositiveParam | None = Field(
+        default=None,
+        description="Faintest point source detected in the reference integration time [uJy] (detection = 'threshold').",
+    )
+
+
+class InterferometerNoise(NoiseSchema):
+    """The photon-noise budget of a nulling interferometer (``detection = "snr"``)."""
+
+    null_depth: FractionParam = Field(
+        description="Instrumental null depth: starlight transmitted for a point-like star [1]."
+    )
+    throughput: FractionParam = Field(description="Fraction of the planet's light reaching the detector [1].")
+    n_collectors: PositiveParam = Field(default=4.0, description="Number of collectors [1].")
+    extended_transmission: FractionParam = Field(
+        default=0.5, description="Mean fringe transmission for extended sources (zodi, exozodi) [1]."
     )
 
 
@@ -96,6 +133,10 @@ class InterferometerSchema(ConceptSchema):
     """Section of a nulling-interferometer concept."""
 
     kind: Literal["interferometer"]
+    detection: Literal["threshold", "snr"] = Field(
+        default="threshold",
+        description="Detection model: 'threshold' (band flux limits) or 'snr' (the noise table).",
+    )
     collector_diameter_m: PositiveParam = Field(description="Diameter of each collector [m].")
     baseline_m: PositiveParam | None = Field(
         default=None, description="Fixed nulling baseline [m] (or give baseline_tuning)."
@@ -118,6 +159,14 @@ class InterferometerSchema(ConceptSchema):
         ),
     )
     bands: list[InterferometerBand] = Field(min_length=1, description="Observing bands.")
+    noise: InterferometerNoise | None = Field(
+        default=None, description="Photon-noise budget; required for detection = 'snr'."
+    )
+
+    @model_validator(mode="after")
+    def _detection_keys(self):
+        check_detection_keys(self, ("flux_limit_uJy",), ("sensitivity_reference_diameter_m",))
+        return self
 
     @model_validator(mode="after")
     def _one_baseline_and_limits_in_order(self):
@@ -159,7 +208,7 @@ def reference_orbit_au(stars, orbit: str) -> np.ndarray:
     return 0.5 * (np.asarray(inner) + np.asarray(outer))
 
 
-class Interferometer(Concept):
+class Interferometer(SnrDetection, Concept):
     """Thermal-emission detections of a nulling interferometer (see the module docstring)."""
 
     Schema = InterferometerSchema
@@ -167,8 +216,10 @@ class Interferometer(Concept):
     def __init__(self, section: InterferometerSchema):
         super().__init__(section)
         self._flux_cache = [LastResult() for _ in section.bands]
+        self._star_cache = [LastResult() for _ in section.bands]
         self._angle_cache = LastResult()
         self._orbit_cache = LastResult()
+        self._init_snr(len(section.bands))
 
     def thermal_flux_uJy(self, planets, stars, params) -> np.ndarray:
         """Band-averaged thermal flux density of every planet, shape (n_bands, n_planets) [uJy]."""
@@ -207,26 +258,81 @@ class Interferometer(Concept):
         return np.clip(per_planet(tuning.wavelength_um, row) * 1e-6 / (2.0 * theta_ref[planets.star]),
                        per_planet(tuning.min_m, row), per_planet(tuning.max_m, row))
 
-    def detect(self, planets, stars, params) -> np.ndarray:
+    def inside(self, planets, stars, params) -> np.ndarray:
+        """Between the inner and the outer angular limit: bool, (n_bands, n_planets)."""
         row = planets.row
         theta = self._angle_rad(planets, stars)
         baseline = self.baseline_m(planets, stars, params)
         diameter = per_planet(params.collector_diameter_m, row)
-        inner_factor = per_planet(params.inner_limit_lambda_over_b, row)
-        outer_factor = per_planet(params.outer_limit_lod, row)
-        scale = 1.0
-        if params.sensitivity_reference_diameter_m is not None:
-            scale = (per_planet(params.sensitivity_reference_diameter_m, row) / diameter) ** 2
         # inner * lambda <= theta <= outer * lambda, with the lambda-free parts per planet
-        inner_per_um = inner_factor * 1e-6 / baseline
-        outer_per_um = outer_factor * 1e-6 / diameter
+        inner_per_um = per_planet(params.inner_limit_lambda_over_b, row) * 1e-6 / baseline
+        outer_per_um = per_planet(params.outer_limit_lod, row) * 1e-6 / diameter
         out = np.empty((len(params.bands), len(planets)), dtype=bool)
         for i, band in enumerate(params.bands):
             center = per_planet(band.center_um, row)
-            flux = self._band_flux(i, band, planets, stars)
-            np.greater_equal(flux, per_planet(band.flux_limit_uJy, row) * scale, out=out[i])
-            out[i] &= theta >= inner_per_um * center
+            np.greater_equal(theta, inner_per_um * center, out=out[i])
             out[i] &= theta <= outer_per_um * center
+        return out
+
+    def detect(self, planets, stars, params, block=None) -> np.ndarray:
+        if params.detection == "snr":
+            return self.detect_snr(planets, stars, params, block)
+        row = planets.row
+        scale = 1.0
+        if params.sensitivity_reference_diameter_m is not None:
+            scale = (per_planet(params.sensitivity_reference_diameter_m, row)
+                     / per_planet(params.collector_diameter_m, row)) ** 2
+        out = self.inside(planets, stars, params)
+        for i, band in enumerate(params.bands):
+            flux = self._band_flux(i, band, planets, stars)
+            out[i] &= flux >= per_planet(band.flux_limit_uJy, row) * scale
+        return out
+
+    def star_flux_uJy(self, index, band, planets, stars) -> np.ndarray:
+        """Blackbody flux density of each planet's star in a band [uJy]."""
+        def per_star(center, width, star):
+            return radiation.blackbody_flux_density_uJy(
+                center, width, np.asarray(stars.teff_K, np.float64)[star],
+                np.asarray(stars.radius_rsun, np.float64)[star] * R_SUN_M,
+                np.asarray(stars.distance_pc, np.float64)[star] * PC_M)
+
+        if is_scalar(band.center_um, band.width_um):
+            flux = self._star_cache[index].get(stars, cache_key(band.center_um, band.width_um),
+                                               lambda: np.atleast_1d(per_star(band.center_um, band.width_um,
+                                                                              slice(None))))
+            return flux[planets.star]
+        row = planets.row
+        return per_star(per_planet(band.center_um, row), per_planet(band.width_um, row), planets.star)
+
+    def noise_rates(self, planets, stars, params, block=None) -> list:
+        """Count rates of every planet in every band (``detection = "snr"``).
+
+        Returns
+        -------
+        list of sweep.physics.noise.NoiseRates
+            One per band, each field of shape (n_planets,) [photons s^-1].
+        """
+        row, noise = planets.row, params.noise
+        diameter = per_planet(params.collector_diameter_m, row)
+        n_collectors = per_planet(noise.n_collectors, row)
+        throughput = per_planet(noise.throughput, row)
+        baseline = self.baseline_m(planets, stars, params)
+        star_diameter = nz.stellar_angular_diameter_rad(np.asarray(stars.radius_rsun, np.float64),
+                                                        np.asarray(stars.distance_pc, np.float64))
+        star_diameter = np.atleast_1d(star_diameter)[planets.star]
+        zodis = self.exozodi_zodi(planets, stars, params, block)
+        out = []
+        for i, band in enumerate(params.bands):
+            center, width = per_planet(band.center_um, row), per_planet(band.width_um, row)
+            omega = resolution_element_sr(center, diameter, SINGLE_MODE_RADIUS_LOD)
+            instrument = instrument_rate(noise.instrument, row, center, width, omega,
+                                         circular_area_m2(diameter, n_collectors), throughput)
+            out.append(nz.interferometer_rates(
+                self._band_flux(i, band, planets, stars), self.star_flux_uJy(i, band, planets, stars),
+                star_diameter, per_planet(noise.null_depth, row), baseline, center, width, diameter,
+                n_collectors, throughput, self.local_zodi_uJy_sr(i, band, planets, stars),
+                zodis * self.exozodi_unit_uJy_sr(i, band, planets, stars), instrument,
+                per_planet(noise.extended_transmission, row)))
         return out
 
 

@@ -19,4 +19,10 @@ habitability
     Habitable-zone limits of Kopparapu et al. (2014), insolation.
 masses
     Mass from radius (Chen & Kipping 2017), radial-velocity semi-amplitude.
+photometry
+    Photon rates from flux densities, Vega magnitudes, resolution elements.
+sky
+    Local zodiacal and exozodiacal surface brightness.
+noise
+    Photon-noise budget: leakage, backgrounds, signal-to-noise and time to a given SNR.
 """

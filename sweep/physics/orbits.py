@@ -88,8 +88,10 @@ def eccentric_anomaly(mean_anomaly_rad, eccentricity, tol=1e-12, max_iter=50):
 
     Vectorised Newton iteration from Danby's starting guess E0 = M + 0.85 e sign(sin M), on the
     mean anomaly reduced to [-pi, pi); the result is put back on the branch of the input
-    (E - M is the same as for the reduced anomaly). Iterates until every element satisfies
-    |E - e sin E - M| < ``tol`` (for e < 0.95 this takes a handful of steps) or ``max_iter``.
+    (E - M is the same as for the reduced anomaly). Each element is iterated until its own
+    residual |E - e sin E - M| < ``tol`` (for e < 0.95 a handful of steps) or ``max_iter``, and
+    is then left alone: an element's result depends only on its own M and e, never on the other
+    elements of the call (so it is the same whatever array the element is solved in).
 
     Parameters
     ----------
@@ -117,15 +119,19 @@ def eccentric_anomaly(mean_anomaly_rad, eccentricity, tol=1e-12, max_iter=50):
     m_in, e = np.broadcast_arrays(np.asarray(mean_anomaly_rad, np.float64),
                                   np.asarray(eccentricity, np.float64))
     m = np.remainder(m_in + np.pi, _TWO_PI) - np.pi
-    ecc = np.array(e, dtype=np.float64)  # writable copy, same shape
-    big_e = m + 0.85 * ecc * np.sign(np.sin(m))
+    flat_m, flat_ecc = np.ravel(m), np.ravel(e)
+    flat_e = flat_m + 0.85 * flat_ecc * np.sign(np.sin(flat_m))
+    active = np.arange(flat_e.size)  # elements not yet converged
     for _ in range(max_iter):
-        sin_e = np.sin(big_e)
-        f = big_e - ecc * sin_e - m
-        if np.all(np.abs(f) < tol):
+        e_a, ecc_a = flat_e[active], flat_ecc[active]
+        f = e_a - ecc_a * np.sin(e_a) - flat_m[active]
+        going = np.abs(f) >= tol
+        if not going.any():
             break
-        big_e -= f / (1.0 - ecc * np.cos(big_e))
-    return _scalar_or_array(big_e + (m_in - m))
+        if not going.all():
+            active, e_a, ecc_a, f = active[going], e_a[going], ecc_a[going], f[going]
+        flat_e[active] = e_a - f / (1.0 - ecc_a * np.cos(e_a))
+    return _scalar_or_array(flat_e.reshape(m.shape) + (m_in - m))
 
 
 def true_anomaly(eccentric_anomaly_rad, eccentricity):
@@ -158,7 +164,7 @@ def true_anomaly(eccentric_anomaly_rad, eccentricity):
 
 
 def sky_geometry(semi_major_axis_au, eccentricity, inclination_rad, arg_periapsis_rad,
-                 mean_anomaly_rad):
+                 mean_anomaly_rad, *, cos_inclination=None, sin_inclination=None):
     """Projected separation, true distance and phase angle of a planet at a given orbital phase.
 
     Convention: observer along +z; sky plane x-y; ascending node on +x (node longitude 0, which
@@ -182,6 +188,9 @@ def sky_geometry(semi_major_axis_au, eccentricity, inclination_rad, arg_periapsi
         Argument of periapsis omega, measured from the ascending node [rad].
     mean_anomaly_rad : float or array_like
         Mean anomaly at the time of observation [rad].
+    cos_inclination, sin_inclination : float or array_like, optional
+        cos i and sin i [1], when the caller has them already (a draw that makes i from cos i);
+        they must be those of ``inclination_rad``. Computed from it when not given.
 
     Returns
     -------
@@ -202,21 +211,34 @@ def sky_geometry(semi_major_axis_au, eccentricity, inclination_rad, arg_periapsi
     a, e, inc, omega, m = np.broadcast_arrays(
         *(np.asarray(v, np.float64) for v in (semi_major_axis_au, eccentricity, inclination_rad,
                                               arg_periapsis_rad, mean_anomaly_rad)))
-    nu = np.array(m, dtype=np.float64)
+    shape = a.shape
+    a, e, inc, omega, m = (np.ravel(v) for v in (a, e, inc, omega, m))
+    cos_i = np.cos(inc) if cos_inclination is None else np.ravel(np.broadcast_to(cos_inclination, shape))
+    sin_i = np.sin(inc) if sin_inclination is None else np.ravel(np.broadcast_to(sin_inclination, shape))
     r = np.array(a, dtype=np.float64)
     ecc = e > 0.0
     if np.any(ecc):
+        nu = np.array(m, dtype=np.float64)
         e_k = e[ecc]
         big_e = eccentric_anomaly(m[ecc], e_k)
         nu[ecc] = true_anomaly(big_e, e_k)
         r[ecc] = a[ecc] * (1.0 - e_k * np.cos(big_e))
+    else:  # circular: nu = M, r = a
+        nu = m
+    # sep = r sqrt(cos^2 theta + (sin theta cos i)^2), alpha = arccos(-sin theta sin i), in place
     theta = omega + nu
     sin_t = np.sin(theta)
-    cos_t = np.cos(theta)
-    cos_i = np.cos(inc)
-    sep = r * np.sqrt(cos_t * cos_t + (sin_t * cos_i) ** 2)
-    alpha = np.arccos(np.clip(-sin_t * np.sin(inc), -1.0, 1.0))
-    return _scalar_or_array(sep), _scalar_or_array(r), _scalar_or_array(alpha)
+    cos_t = np.cos(theta, out=theta)
+    term = sin_t * cos_i
+    term *= term
+    cos_t *= cos_t
+    cos_t += term
+    sep = np.sqrt(cos_t, out=cos_t)
+    sep *= r
+    proj = np.negative(sin_t, out=sin_t)
+    proj *= sin_i
+    alpha = np.arccos(np.clip(proj, -1.0, 1.0, out=proj), out=proj)
+    return tuple(_scalar_or_array(x.reshape(shape)) for x in (sep, r, alpha))
 
 
 def projected_separation_fraction_above(s_over_a):
