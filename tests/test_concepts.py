@@ -318,8 +318,8 @@ def test_larger_aperture_or_lower_flux_limit_never_detects_fewer(seed, diameter,
      "outer_working_angle_lod"),
     (interferometer, dict(baseline_m=0.8), "inner_limit_lambda_over_b"),
     (interferometer, dict(inner_limit_lambda_over_b=2.0, outer_limit_lod=0.2), "outer_limit_lod"),
-    (coronagraph, dict(bands=[dict(name="V", center_um=0.0, width_um=0.1, flux_limit_uJy=1.0)]), "bands[0].center_um"),
-    (interferometer, dict(bands=[dict(name="N", center_um=-10.0, width_um=2.0, flux_limit_uJy=1.0)]), "bands[0].center_um"),
+    (coronagraph, dict(bands=[dict(name="V", center_um=0.0, width_um=0.1, flux_limit_uJy=1.0)]), "bands.V.center_um"),
+    (interferometer, dict(bands=[dict(name="N", center_um=-10.0, width_um=2.0, flux_limit_uJy=1.0)]), "bands.N.center_um"),
     (interferometer, dict(bands=[dict(name="N", center_um=10.0, width_um=25.0, flux_limit_uJy=1.0)]), "width_um"),
     (coronagraph, dict(aperture_diameter_m=0.0), "aperture_diameter_m"),
     (interferometer, dict(collector_diameter_m={"dist": "uniform", "loc": -1.0, "scale": 3.0}), "collector_diameter_m"),
@@ -372,7 +372,7 @@ def test_plugin_from_file_detects_and_pickles():
     # a dask worker unpickles the concept and its section by importing the same file
     clone = pickle.loads(pickle.dumps(concept))
     np.testing.assert_array_equal(clone.detect(planets, stars, pickle.loads(pickle.dumps(resolved))), detected)
-    with pytest.raises(UserInputError, match=r"concepts\.warm-eye\.bands\[0\]\.flux_limit_uJy"):
+    with pytest.raises(UserInputError, match=r"concepts\.warm-eye\.bands\.N10\.flux_limit_uJy"):
         parse_concept(dict(raw, bands=[dict(name="N10", center_um=10.0, width_um=2.0, flux_limit_uJy=-1.0)]),
                       "s.toml: concepts.warm-eye", base_dir=REPO / "workflows")
     with pytest.raises(UserInputError, match="has no class 'Nope'"):

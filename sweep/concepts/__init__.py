@@ -58,6 +58,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, field_valida
 
 from sweep import params as _params
 from sweep.errors import UserInputError
+from sweep.spec_messages import validation_message
 from sweep.params import PositiveParam
 
 __all__ = [
@@ -359,33 +360,6 @@ def concept_schema(kind: str) -> type[BaseModel]:
     return _schema_and_factory(kind)[0]
 
 
-def _location(loc: tuple) -> str:
-    text = ""
-    for part in loc:
-        text += f"[{part}]" if isinstance(part, int) else f".{part}"
-    return text
-
-
-def _one_line(exc: ValidationError, where: str, schema: type[BaseModel]) -> str:
-    error = exc.errors(include_url=False)[0]
-    # Drop the labels pydantic adds for the branches of a union (fixed / grid / dist, validators).
-    loc = tuple(p for p in error["loc"] if isinstance(p, int) or (
-        p not in ("fixed", "grid", "dist") and not p.startswith(("function-", "tagged-union"))))
-    message = error["msg"].removeprefix("Value error, ")
-    kind = error["type"]
-    if kind == "extra_forbidden":
-        message = "unknown key"
-        if len(loc) == 1:
-            message += f"; allowed: {', '.join(schema.model_fields)}"
-    elif kind == "missing":
-        message = "required key is missing"
-    elif kind == "too_short":
-        message = f"needs at least {error.get('ctx', {}).get('min_length', 1)} entry"
-    value = error.get("input")
-    shown = "" if kind == "missing" or "got" in message or isinstance(value, (dict, list)) else f" (got {value!r})"
-    return f"{where}{_location(loc)}: {message}{shown}"
-
-
 def parse_concept(raw: dict, where: str, base_dir: Path | str | None = None) -> BaseModel:
     """Validate one concept section of a sweep definition.
 
@@ -420,7 +394,8 @@ def parse_concept(raw: dict, where: str, base_dir: Path | str | None = None) -> 
     try:
         return schema.model_validate(raw)
     except ValidationError as exc:
-        raise UserInputError(_one_line(exc, where, schema)) from None
+        file, _, prefix = where.rpartition(": ")
+        raise UserInputError(validation_message(exc, raw, prefix, file or "sweep definition", schema)) from None
 
 
 @functools.lru_cache(maxsize=None)
