@@ -11,7 +11,9 @@ The draw follows DESIGN.md ("Rows, seeds and common random numbers"). For each r
 3. thinning (Lewis & Shedler 1979): a candidate in cell ``k`` is kept when its acceptance uniform
    is below ``rate_k / envelope_k``; where a row's rate exceeds the envelope, the excess planets
    come from the row's :data:`~sweep.streams.EXCESS` stream (Poisson per cell, hosts uniform among
-   the stars of the class), so the planets of a star are exactly ``Poisson(rate)`` per cell;
+   the stars of the class), so the planets of a star are exactly ``Poisson(rate)`` per cell. Only
+   candidates whose acceptance uniform is below the row's largest ratio are given a cell (the
+   others are rejected whatever their cell), and these are handled for the whole block at once;
 4. every property comes from its own uniform through an inverse CDF: ln R and ln P within the cell
    (density ``∝ R^alpha P^beta``), ``cos i`` uniform on [-1, 1] (isotropic orbits), mean anomaly
    and argument of periapsis uniform on [0, 2 pi), albedos and eccentricity by ``prior.ppf(u)``.
@@ -233,6 +235,14 @@ class _Layout:
         self.class_count = np.bincount(self.star_class, minlength=n_classes)
         self.by_class = np.argsort(self.star_class, kind="stable")
         self.class_offset = np.concatenate([[0], np.cumsum(self.class_count)[:-1]])
+        # a table for choose_cells: for bin j of a uniform grid over [0, total), the first cell
+        # whose end is above the bin's lower edge (searchsorted at the edge)
+        total = float(self.cumulative[-1]) if len(self.cumulative) else 0.0
+        n_bins = 8 * len(self.cumulative)
+        self.bins_per_unit = n_bins / total if total > 0 else 0.0
+        edges = np.arange(n_bins) / self.bins_per_unit if total > 0 else np.zeros(1)
+        self.bin_first_cell = np.searchsorted(self.cumulative, edges, side="right")
+        self.cumulative_ends = np.append(self.cumulative, np.inf)
 
 
 def choose_cells(layout: _Layout, star: np.ndarray, u: np.ndarray) -> np.ndarray:
@@ -253,8 +263,19 @@ def choose_cells(layout: _Layout, star: np.ndarray, u: np.ndarray) -> np.ndarray
         Flat cell index (``class * n_cells + cell``); never a cell of zero envelope.
     """
     target = layout.star_start[star] + u * layout.star_total[star]
-    # side="right" skips cells of zero width; the cap only catches rounding at the class's top end
-    return np.minimum(np.searchsorted(layout.cumulative, target, side="right"), layout.star_last[star])
+    # np.searchsorted(layout.cumulative, target, side="right"), by table: start from the first
+    # cell of the bin below the target's (never past the answer, whatever the rounding of the
+    # bin index) and step on while the cell ends at or below the target (this also skips cells of
+    # zero width). The cap only catches rounding at the class's top end.
+    bins = np.multiply(target, layout.bins_per_unit).astype(np.intp)
+    bins -= 1
+    np.clip(bins, 0, len(layout.bin_first_cell) - 1, out=bins)
+    cell = layout.bin_first_cell[bins]
+    behind = np.flatnonzero(layout.cumulative_ends[cell] <= target)
+    while len(behind):
+        cell[behind] += 1
+        behind = behind[layout.cumulative_ends[cell[behind]] <= target[behind]]
+    return np.minimum(cell, layout.star_last[star])
 
 
 def _excess(layout: _Layout, excess: np.ndarray, rng: np.random.Generator):
@@ -315,10 +336,12 @@ def draw_planets(block: RowBlock, stars: StarTable, occurrence: OccurrenceModel,
             extra.append((r, *_excess(layout, excess[r], streams.row_generator(*key, streams.EXCESS))))
     # host and row of every candidate left: its place in the block's (row, star) candidate counts
     n_stars = len(stars)
-    ends = np.cumsum(np.concatenate(counts)) if counts else np.zeros(0, np.int64)
-    row_starts = np.concatenate([[0], ends[n_stars - 1::max(n_stars, 1)][:-1]]) if n_rows else np.zeros(0, np.int64)
+    counts = np.concatenate(counts + [np.zeros(0, np.int64)])
+    host = np.repeat(np.arange(len(counts)), counts)  # (row, star), flattened, of every candidate
+    sizes = counts.reshape(n_rows, n_stars).sum(axis=1) if n_rows and n_stars else np.zeros(n_rows, np.int64)
+    row_starts = np.concatenate([[0], np.cumsum(sizes)[:-1]]).astype(np.int64)
     place = np.concatenate([p + start for p, start in zip(positions, row_starts)] + [np.zeros(0, np.int64)])
-    row, star = np.divmod(np.searchsorted(ends, place, side="right"), max(n_stars, 1))
+    row, star = np.divmod(host[place], max(n_stars, 1))
     u = np.concatenate(picked + [np.zeros((N_UNIFORMS, 0))], axis=1)
     cell = choose_cells(layout, star, u[_CELL])
     kept = u[_ACCEPT] < ratio[row, cell]

@@ -1,0 +1,1 @@
+"""Benchmarks of sweep (not part of the installed package): ``python benchmarks/run.py --json``."""
