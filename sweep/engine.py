@@ -17,6 +17,7 @@ import contextlib
 import logging
 import os
 import pickle
+import threading
 import time
 import uuid
 from dataclasses import asdict, dataclass, field
@@ -118,6 +119,7 @@ def open_client(workers=None, scheduler=None, threads_per_worker=1, dashboard_ad
         host="127.0.0.1",
         dashboard_address=dashboard_address,
         silence_logs=logging.CRITICAL,
+        preload=list(WORKER_PRELOAD),
     )
     try:
         client = Client(cluster, set_as_default=False)
@@ -127,6 +129,11 @@ def open_client(workers=None, scheduler=None, threads_per_worker=1, dashboard_ad
             _close_quietly(client)
     finally:
         cluster.close()
+
+
+#: Modules each local worker imports as it starts, while the client still prepares the run, so the
+#: first task does not pay for importing the model's libraries.
+WORKER_PRELOAD = ("sweep.model", "sweep.testfunctions", "sweep.store")
 
 
 def _close_quietly(client) -> None:
@@ -183,6 +190,39 @@ def _first_line(exc) -> str:
 # ------------------------------------------------------------------------------------------ run
 
 
+class _BackgroundClient:
+    """:func:`open_client` entered in a thread, so that the workers start (and import the model's
+    libraries) while the client prepares the run; :meth:`wait` returns the client."""
+
+    def __init__(self, **options):
+        self._context = open_client(**options)
+        self._client = None
+        self._error = None
+        self._thread = threading.Thread(target=self._start, name="sweep-start-workers", daemon=True)
+
+    def _start(self):
+        try:
+            self._client = self._context.__enter__()
+        except BaseException as exc:  # noqa: BLE001 - handed to the caller by wait()
+            self._error = exc
+
+    def __enter__(self):
+        self._thread.start()
+        return self
+
+    def wait(self):
+        self._thread.join()
+        if self._error is not None:
+            raise self._error
+        return self._client
+
+    def __exit__(self, *exc_info):
+        self._thread.join()
+        if self._error is None:
+            return self._context.__exit__(*exc_info)
+        return False
+
+
 def run_sweep(spec, output=None, client=None, fresh=False, progress=True, max_retries=None, model=None,
               workers=None, scheduler=None) -> RunSummary:
     """Compute every block of a sweep that its store does not hold yet.
@@ -212,10 +252,24 @@ def run_sweep(spec, output=None, client=None, fresh=False, progress=True, max_re
     """
     from sweep.design import build_rows
 
-    rows = build_rows(spec)
-    model = spec.build_model() if model is None else model
     path = spec.output_path(None if output is None else str(output))
+    cube_store.check_writable(path, spec, fresh)
     max_retries = spec.execution.max_retries if max_retries is None else int(max_retries)
+    with contextlib.ExitStack() as stack:
+        if client is None:  # start the workers while the rows, the model and the store are prepared
+            client = stack.enter_context(_BackgroundClient(
+                workers=workers if workers is not None else spec.execution.workers,
+                scheduler=scheduler,
+                threads_per_worker=spec.execution.threads_per_worker,
+                dashboard_address=spec.execution.dashboard_address,
+            ))
+        rows = build_rows(spec)
+        model = spec.build_model() if model is None else model
+        return _run(spec, path, rows, model, client, fresh, progress, max_retries)
+
+
+def _run(spec, path, rows, model, client, fresh, progress, max_retries) -> RunSummary:
+    """Open the store, compute its missing blocks on ``client``, log the run."""
     with cube_store.create_or_resume(path, spec, rows, model, fresh=fresh) as cube:
         done = cube.done_blocks()
         todo = [index for index in range(cube.n_blocks) if index not in done]
@@ -225,15 +279,9 @@ def run_sweep(spec, output=None, client=None, fresh=False, progress=True, max_re
         outcome = "interrupted"
         try:
             if todo:
-                with contextlib.ExitStack() as stack:
-                    if client is None:
-                        client = stack.enter_context(open_client(
-                            workers=workers if workers is not None else spec.execution.workers,
-                            scheduler=scheduler,
-                            threads_per_worker=spec.execution.threads_per_worker,
-                            dashboard_address=spec.execution.dashboard_address,
-                        ))
-                    _compute(client, cube, rows, model, todo, max_retries, summary, progress)
+                if isinstance(client, _BackgroundClient):
+                    client = client.wait()
+                _compute(client, cube, rows, model, todo, max_retries, summary, progress)
             outcome = "complete"
         except UserInputError as exc:
             outcome = f"failed: {exc}"

@@ -318,3 +318,12 @@ def resolve(section: BaseModel, prefix: str, value_of: ValueSource):
     grid point.
     """
     return _resolve(section, prefix, value_of)
+
+
+def require_distinct_names(items, what: str):
+    """Schema check for lists of named tables (bands, criteria): raise ``ValueError`` on a repeat."""
+    names = [item.name for item in items]
+    repeated = sorted({name for name in names if names.count(name) > 1})
+    if repeated:
+        raise ValueError(f"{what} names must be distinct; repeated: {', '.join(repeated)}")
+    return items

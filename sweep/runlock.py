@@ -104,11 +104,11 @@ class RunLock:
         except FileExistsError:
             holder = self.holder(folder)
             if holder is not None:
-                raise self._busy(folder, holder) from None
+                raise self.busy_error(folder, holder) from None
             write_atomic(self.path, json.dumps(record))  # stale: take it over
             time.sleep(0.1)  # two runs taking over at once: the last to write wins, the other leaves
             if self._token() != record["token"]:
-                raise self._busy(folder, self.holder(folder) or {}) from None
+                raise self.busy_error(folder, self.holder(folder) or {}) from None
         except OSError as exc:
             raise UserInputError(f"{folder}: cannot write there ({exc.strerror})") from None
         else:
@@ -120,7 +120,7 @@ class RunLock:
         self._thread.start()
 
     @staticmethod
-    def _busy(folder, holder) -> UserInputError:
+    def busy_error(folder, holder) -> UserInputError:
         return UserInputError(
             f"{folder}: is being written by another sweep run (pid {holder.get('pid')} on "
             f"{holder.get('host')}, since {holder.get('started')}); wait for it to end, or stop it"

@@ -114,10 +114,12 @@ class CubeStore:
         self.variables = [(str(name), str(dtype), tuple(int(n) for n in shape)) for name, dtype, shape in variables]
         self.spec_hash = spec_hash
         self._lock = lock
+        self._writable_group = None
 
     def __getstate__(self):
         state = dict(self.__dict__)
         state["_lock"] = None
+        state["_writable_group"] = None  # each process opens the store itself
         return state
 
     def __enter__(self):
@@ -164,7 +166,9 @@ class CubeStore:
                     f"the cube expects {(stop - start, *shape)}"
                 )
             values.append(np.ascontiguousarray(array, dtype=dtype))
-        group = self._group("r+")
+        if self._writable_group is None:
+            self._writable_group = self._group("r+")
+        group = self._writable_group
         for (name, _, _), array in zip(self.variables, values):
             group[name][start:stop] = array
         return block_checksum(values)
@@ -350,6 +354,33 @@ def _stored_variables(path: Path) -> dict | None:
         return None
 
 
+def _check_same_spec(path: Path, spec) -> None:
+    stored_hash = _root_attrs(path)["spec_hash"]
+    if stored_hash != spec.hash:
+        raise UserInputError(
+            f"{path}: was written from another sweep definition (spec hash {stored_hash[:12]}, "
+            f"this one {spec.hash[:12]}); use --fresh to start it again, or --output another path"
+        )
+
+
+def check_writable(path, spec, fresh: bool = False) -> None:
+    """Refuse early, without taking the lock, what :func:`create_or_resume` would refuse.
+
+    A folder or file that is not a sweep store, a store of another spec (unless ``fresh``), a
+    store a live run is writing: one-line :class:`UserInputError`. Cheap: reads metadata only.
+    """
+    path = Path(path)
+    kind = _classify(path)
+    if kind == "foreign":
+        what = "is a file" if path.exists() and not path.is_dir() else "is a folder that is not a sweep store"
+        raise UserInputError(f"{path}: {what}; choose another output path (--output) or move it away")
+    holder = RunLock.holder(path) if path.is_dir() else None
+    if holder is not None:
+        raise RunLock.busy_error(path, holder)
+    if kind == "store" and not fresh:
+        _check_same_spec(path, spec)
+
+
 def create_or_resume(path, spec, rows, model, fresh: bool = False) -> CubeStore:
     """Open the store for writing: allocate it, or resume one made from the same spec.
 
@@ -371,10 +402,7 @@ def create_or_resume(path, spec, rows, model, fresh: bool = False) -> CubeStore:
         Start again from an empty cube, whatever the store held.
     """
     path = Path(path)
-    kind = _classify(path)
-    if kind == "foreign":
-        what = "is a file" if path.exists() and not path.is_dir() else "is a folder that is not a sweep store"
-        raise UserInputError(f"{path}: {what}; choose another output path (--output) or move it away")
+    check_writable(path, spec, fresh)
     try:
         path.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
@@ -385,12 +413,7 @@ def create_or_resume(path, spec, rows, model, fresh: bool = False) -> CubeStore:
         kind = _classify(path)
         variables = _variables(model)
         if kind == "store" and not fresh:
-            stored_hash = _root_attrs(path)["spec_hash"]
-            if stored_hash != spec.hash:
-                raise UserInputError(
-                    f"{path}: was written from another sweep definition (spec hash {stored_hash[:12]}, "
-                    f"this one {spec.hash[:12]}); use --fresh to start it again, or --output another path"
-                )
+            _check_same_spec(path, spec)
             stored = _stored_variables(path)
             if stored is None or list(stored.items()) != [(name, shape) for name, _, shape in variables]:
                 raise UserInputError(

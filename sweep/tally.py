@@ -46,7 +46,7 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
 
 from sweep.blocks import OutputVariable
-from sweep.params import unit_from_key
+from sweep.params import require_distinct_names, unit_from_key
 from sweep.physics import habitability
 from sweep.structs import SPECTRAL_CLASSES
 
@@ -140,11 +140,7 @@ class CategoriesSection(BaseModel):
     @field_validator("criteria", mode="after")
     @classmethod
     def _distinct_names(cls, criteria):
-        names = [c.name for c in criteria]
-        repeated = sorted({n for n in names if names.count(n) > 1})
-        if repeated:
-            raise ValueError(f"criterion names must be distinct; repeated: {', '.join(repeated)}")
-        return criteria
+        return require_distinct_names(criteria, "criterion")
 
 
 def _bin_labels(edges, overflow: bool) -> list[str]:

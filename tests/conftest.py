@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 import os
 import signal
 import socket
@@ -14,6 +15,42 @@ import pytest
 
 TESTS = Path(__file__).resolve().parent
 
+YEAR_D = 365.25  # Julian year [d] (IAU)
+# SAG13 central values, from memory (Kopparapu et al. 2018, ApJ 856, 122, which tabulates SAG13)
+SAG13 = [(0.0, 3.4, 0.38, -0.19, 0.26), (3.4, math.inf, 0.73, -1.18, 0.59)]
+
+
+def power_law_integral(gamma, alpha, beta, r1, r2, p1_d, p2_d):
+    """Gamma (R2^a - R1^a)/a (P2^b - P1^b)/b, P in years: the analytic integral of the rate density
+    Gamma R^alpha P^beta over dlnR dlnP (a logarithm where an exponent is 0)."""
+    p1, p2 = p1_d / YEAR_D, p2_d / YEAR_D
+    r_part = math.log(r2 / r1) if alpha == 0 else (r2**alpha - r1**alpha) / alpha
+    p_part = math.log(p2 / p1) if beta == 0 else (p2**beta - p1**beta) / beta
+    return gamma * r_part * p_part
+
+
+def sag13_expected(r1, r2, p1_d, p2_d):
+    """Planets per star of SAG13 in a radius-period box [1]: :func:`power_law_integral` summed over
+    the pieces of :data:`SAG13`."""
+    total = 0.0
+    for low, high, gamma, alpha, beta in SAG13:
+        a, b = max(r1, low), min(r2, high)
+        if b > a:
+            total += power_law_integral(gamma, alpha, beta, a, b, p1_d, p2_d)
+    return total
+
+#: The ``[model]`` and ``[inputs]`` tables of an Ishigami sweep: x1, x2, x3 uniform on [-pi, pi)
+#: (Ishigami & Homma 1990). Put a ``[run]`` table before it.
+ISHIGAMI_MODEL = """\
+[model]
+kind = "ishigami"
+
+[inputs]
+x1 = { dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }
+x2 = { dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }
+x3 = { dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }
+"""
+
 ISHIGAMI_TEMPLATE = """\
 [run]
 name = "{name}"
@@ -22,14 +59,7 @@ base_rows = {base_rows}
 seed = 20261202
 block_rows = {block_rows}
 
-[model]
-kind = "ishigami"
-
-[inputs]
-x1 = {{ dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }}
-x2 = {{ dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }}
-x3 = {{ dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }}
-"""
+""" + ISHIGAMI_MODEL.replace("{", "{{").replace("}", "}}")
 
 
 @pytest.fixture

@@ -26,6 +26,8 @@ import xarray as xr
 from sweep import cluster
 from sweep.errors import UserInputError
 
+from conftest import ISHIGAMI_MODEL
+
 # ------------------------------------------------------------------------------- flags, config
 
 
@@ -189,14 +191,7 @@ base_rows = 64            # rows = 64 (2 + 3) = 320
 seed = 20240607
 block_rows = 8            # 40 blocks
 
-[model]
-kind = "ishigami"
-
-[inputs]
-x1 = { dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }
-x2 = { dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }
-x3 = { dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }
-"""
+""" + ISHIGAMI_MODEL
 
 BLOCK_DELAY_S = 0.3  # long enough that a worker can be cancelled or stopped mid-run
 

@@ -13,6 +13,8 @@ from sweep.design import build_rows, design_generator, monte_carlo_rows, saltell
 from sweep.params import Factor
 from sweep.spec import parse_spec
 
+from conftest import ISHIGAMI_MODEL
+
 SPEC = """\
 [run]
 name = "g"
@@ -178,20 +180,7 @@ def test_monte_carlo_spec():
 
 def test_ishigami_total_indices_from_the_design():
     """End to end through the design: Jansen's estimator on A and AB_j recovers the exact totals."""
-    text = """
-    [run]
-    name = "i"
-    mode = "saltelli"
-    base_rows = 4096
-    seed = 1990
-    [model]
-    kind = "ishigami"
-    [inputs]
-    x1 = { dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }
-    x2 = { dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }
-    x3 = { dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }
-    """
-    spec = spec_of(text.replace("\n    ", "\n"))
+    spec = spec_of('[run]\nname = "i"\nmode = "saltelli"\nbase_rows = 4096\nseed = 1990\n' + ISHIGAMI_MODEL)
     rows = build_rows(spec)
     model = spec.build_model()
     y = model.evaluate(rows.block(0, rows.n_rows))["y"]

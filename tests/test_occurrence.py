@@ -12,34 +12,14 @@ from scipy.special import ndtr
 from sweep import occurrence
 from sweep.errors import UserInputError
 
+from conftest import YEAR_D, sag13_expected
+
 SECTION = TypeAdapter(occurrence.OccurrenceSection)
-YEAR_D = 365.25  # Julian year [d] (IAU)
 PHI_MINUS, PHI_PLUS = float(ndtr(-1.0)), float(ndtr(1.0))  # 0.1587, 0.8413: the 1-sigma quantiles
 
 
 def build(**section):
     return occurrence.build_occurrence(SECTION.validate_python(section), ".")
-
-
-def power_law_integral(gamma, alpha, beta, r1, r2, p1_d, p2_d):
-    """Gamma (R2^a - R1^a)/a (P2^b - P1^b)/b, P in years: the analytic integral of the rate density."""
-    p1, p2 = p1_d / YEAR_D, p2_d / YEAR_D
-    r_part = math.log(r2 / r1) if alpha == 0 else (r2**alpha - r1**alpha) / alpha
-    p_part = math.log(p2 / p1) if beta == 0 else (p2**beta - p1**beta) / beta
-    return gamma * r_part * p_part
-
-
-# SAG13 central values, from memory (Kopparapu et al. 2018, ApJ 856, 122, which tabulates SAG13)
-SAG13 = [(0.0, 3.4, 0.38, -0.19, 0.26), (3.4, math.inf, 0.73, -1.18, 0.59)]
-
-
-def sag13_expected(r1, r2, p1_d, p2_d):
-    total = 0.0
-    for low, high, gamma, alpha, beta in SAG13:
-        a, b = max(r1, low), min(r2, high)
-        if b > a:
-            total += power_law_integral(gamma, alpha, beta, a, b, p1_d, p2_d)
-    return total
 
 
 # -- power law --------------------------------------------------------------------------------------
@@ -51,7 +31,7 @@ def test_sag13_preset_values():
 
 def test_sag13_cells_integrate_the_rate_density_exactly():
     model = build(kind="power-law", preset="sag13", radius_rearth=[0.5, 16.0], period_d=[10.0, 640.0])
-    expected = sag13_expected(0.5, 16.0, 10.0, 640.0)  # analytic integral (see power_law_integral)
+    expected = sag13_expected(0.5, 16.0, 10.0, 640.0)  # analytic integral (see conftest.power_law_integral)
     np.testing.assert_allclose(model.nominal.sum(axis=1), expected, rtol=1e-12)
     # every cell: its own analytic integral
     r1, r2 = np.exp(model.lnr_lo[1]), np.exp(model.lnr_hi[1])

@@ -14,26 +14,14 @@ from sweep import catalogs, occurrence, params, planets
 from sweep.blocks import RowBlock
 from sweep.structs import PlanetBatch, StarTable
 
+from conftest import YEAR_D, sag13_expected
+
 SECTION = TypeAdapter(occurrence.OccurrenceSection)
-YEAR_D = 365.25  # Julian year [d] (IAU)
 R_SUN_AU = 695700.0 / 149597870.7  # IAU 2015 nominal solar radius over the IAU 2012 au
 FIELDS = [f.name for f in fields(PlanetBatch)]
 ORBIT_FIELDS = ["row", "star", "radius_rearth", "period_d", "semi_major_axis_au", "eccentricity",
                 "inclination_rad", "arg_periapsis_rad", "mean_anomaly_rad", "separation_au",
                 "orbital_distance_au", "phase_angle_rad", "mass_mearth", "rv_semi_amplitude_ms"]
-# SAG13 central values, from memory (Kopparapu et al. 2018, ApJ 856, 122, which tabulates SAG13)
-SAG13 = [(0.0, 3.4, 0.38, -0.19, 0.26), (3.4, math.inf, 0.73, -1.18, 0.59)]
-
-
-def sag13_expected(r1, r2, p1_d, p2_d):
-    """Analytic integral of Gamma R^alpha P^beta over dlnR dlnP (P in years), summed over the pieces."""
-    total = 0.0
-    for low, high, gamma, alpha, beta in SAG13:
-        a, b = max(r1, low), min(r2, high)
-        if b > a:
-            total += (gamma * (b**alpha - a**alpha) / alpha
-                      * ((p2_d / YEAR_D) ** beta - (p1_d / YEAR_D) ** beta) / beta)
-    return total
 
 
 def sun_like(n, spectral_class=1):

@@ -20,6 +20,8 @@ from sweep.design import build_rows
 from sweep.errors import UserInputError
 from sweep.spec import load_spec
 
+from conftest import ISHIGAMI_MODEL
+
 pytestmark = pytest.mark.timeout(120)
 
 MONTE_CARLO = """\
@@ -30,14 +32,7 @@ rows = 100
 seed = 5
 block_rows = 32
 
-[model]
-kind = "ishigami"
-
-[inputs]
-x1 = { dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }
-x2 = { dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }
-x3 = { dist = "uniform", loc = -3.141592653589793, scale = 6.283185307179586 }
-"""
+""" + ISHIGAMI_MODEL
 
 
 class CountsModel:

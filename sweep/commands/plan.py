@@ -7,6 +7,8 @@ import math
 import os
 import time
 
+from sweep.commands._args import add_spec_argument
+
 #: Rows of the calibration block (fewer if the sweep's blocks are smaller).
 CALIBRATION_ROWS = 8
 #: Stop repeating the calibration block after this much time [s].
@@ -23,7 +25,7 @@ def add_parser(subparsers) -> None:
             "expected store size and a CPU time estimated by timing one small block here."
         ),
     )
-    parser.add_argument("spec", metavar="SPEC", help="sweep definition (TOML)")
+    add_spec_argument(parser)
     parser.add_argument("--output", metavar="STORE", help="store path to report (default as sweep run)")
     parser.add_argument("--json", action="store_true", help="print the plan as JSON")
     parser.set_defaults(handler=run)

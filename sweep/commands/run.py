@@ -7,6 +7,7 @@ import json
 from pathlib import Path
 
 from sweep.cluster import add_cluster_arguments, batch_client
+from sweep.commands._args import add_spec_argument
 from sweep.errors import UserInputError
 
 
@@ -30,7 +31,7 @@ def add_parser(subparsers) -> None:
             "Started again on an existing store, it computes only the blocks not yet done."
         ),
     )
-    parser.add_argument("spec", metavar="SPEC", help="sweep definition (TOML)")
+    add_spec_argument(parser)
     parser.add_argument("--output", metavar="STORE", help="store path (default: run.output, else results/<name>.zarr)")
     parser.add_argument("--workers", type=_positive, metavar="N",
                         help="local worker processes (default: execution.workers, 0 there = one per core)")

@@ -8,6 +8,7 @@ from sweep import analysis
 from sweep.analysis.intervals import intervals
 from sweep.analysis.knowledge import knowledge_value
 from sweep.analysis.sobol import sobol
+from sweep.commands._args import add_output_selection, add_result_store_argument, selected_variables
 from sweep.report.tables import sensitivity_tables, sobol_records
 
 
@@ -17,13 +18,8 @@ def add_parser(subparsers) -> None:
         description="Print first-order (S1) and total (ST) Sobol indices of the outputs of a "
                     "Saltelli result store with bootstrap confidence intervals, and how much the "
                     "yield's spread would shrink if each factor were known exactly.")
-    parser.add_argument("store", help="result store (folder written by `sweep run`)")
-    parser.add_argument("--json", action="store_true",
-                        help="print a JSON list of records instead of tables")
-    parser.add_argument("--variables", default=None,
-                        help="comma-separated outputs (default: the headline yield in tables, "
-                             "every output in JSON)")
-    parser.add_argument("--all", action="store_true", help="tables of every output")
+    add_result_store_argument(parser)
+    add_output_selection(parser)
     parser.add_argument("--base-rows", type=int, default=None,
                         help="use the first N base rows of every block (a power of two)")
     parser.add_argument("--confidence", type=float, default=0.95,
@@ -36,10 +32,7 @@ def add_parser(subparsers) -> None:
 def run(args) -> int:
     ds, rows_complete = analysis.load_cube(args.store)
     names = analysis.output_variables(ds)
-    if args.variables:
-        variables = [v.strip() for v in args.variables.split(",") if v.strip()]
-    else:
-        variables = names if (args.json or args.all) else names[:1]
+    variables = selected_variables(args, names, names[:1])
     result = sobol(ds, rows_complete=rows_complete, variables=variables,
                    base_rows=args.base_rows, confidence_level=args.confidence,
                    n_resamples=args.resamples)

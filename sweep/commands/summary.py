@@ -6,6 +6,7 @@ import json
 
 from sweep import analysis
 from sweep.analysis.intervals import intervals
+from sweep.commands._args import add_output_selection, add_result_store_argument, selected_variables
 from sweep.errors import UserInputError
 from sweep.report.tables import interval_records, summary_tables
 
@@ -28,15 +29,10 @@ def add_parser(subparsers) -> None:
         "summary", help="medians and credible intervals of the yields in a result store",
         description="Print the median, mean and credible intervals of every output of a result "
                     "store (totals over categories; per concept, band and grid point).")
-    parser.add_argument("store", help="result store (folder written by `sweep run`)")
-    parser.add_argument("--json", action="store_true",
-                        help="print a JSON list of records instead of tables")
+    add_result_store_argument(parser)
+    add_output_selection(parser)
     parser.add_argument("--levels", default="68,95",
                         help="credible levels in percent, comma-separated (default 68,95)")
-    parser.add_argument("--variables", default=None,
-                        help="comma-separated outputs (default: the headline yield in tables, "
-                             "every output in JSON)")
-    parser.add_argument("--all", action="store_true", help="tables of every output")
     parser.add_argument("--per-category", action="store_true",
                         help="also report every radius / temperature / spectral-class bin")
     parser.set_defaults(handler=run)
@@ -45,13 +41,9 @@ def add_parser(subparsers) -> None:
 def run(args) -> int:
     levels = parse_levels(args.levels)
     ds, rows_complete = analysis.load_cube(args.store)
-    if args.variables:
-        variables = [v.strip() for v in args.variables.split(",") if v.strip()]
-    elif args.json or args.all:
-        variables = analysis.output_variables(ds)
-    else:
-        names = analysis.output_variables(ds)
-        variables = names[:1] + [n for n in ("present",) if n in names and n != names[0]]
+    names = analysis.output_variables(ds)
+    variables = selected_variables(args, names,
+                                   names[:1] + [n for n in ("present",) if n in names and n != names[0]])
     result = intervals(ds, levels=levels, rows_complete=rows_complete, variables=variables)
     records = interval_records(result)
     if args.per_category:

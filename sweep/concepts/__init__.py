@@ -60,12 +60,16 @@ from sweep import params as _params
 from sweep.errors import UserInputError
 from sweep.spec_messages import validation_message
 from sweep.params import PositiveParam
+from sweep.physics import radiation
+from sweep.physics._constants import AU_M, PC_M, R_SUN_M
 
 __all__ = [
     "BandSchema",
     "Concept",
     "ConceptSchema",
     "LastResult",
+    "angular_separation_rad",
+    "angular_window",
     "build_concept",
     "cache_key",
     "call_detect",
@@ -76,6 +80,8 @@ __all__ = [
     "parse_concept",
     "per_planet",
     "register",
+    "sensitivity_scale",
+    "star_blackbody_uJy",
 ]
 
 _NAME_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9_+-]*$"
@@ -112,11 +118,7 @@ class ConceptSchema(BaseModel):
     @field_validator("bands", mode="after")
     @classmethod
     def _distinct_band_names(cls, bands):
-        names = [band.name for band in bands]
-        duplicates = sorted({n for n in names if names.count(n) > 1})
-        if duplicates:
-            raise ValueError(f"band names must be distinct; repeated: {', '.join(duplicates)}")
-        return bands
+        return _params.require_distinct_names(bands, "band")
 
 
 def per_planet(value, row: np.ndarray):
@@ -152,6 +154,83 @@ def nominal(value) -> float:
 def cache_key(*values) -> tuple:
     """A hashable, comparable key of resolved parameters (floats or per-row arrays)."""
     return tuple(float(v) if np.ndim(v) == 0 else np.asarray(v).tobytes() for v in values)
+
+
+def angular_separation_rad(planets, stars) -> np.ndarray:
+    """Projected angular separation of every planet from its star [rad]: separation / distance.
+
+    Parameters
+    ----------
+    planets : sweep.structs.PlanetBatch
+        The planets (``separation_au`` [au], ``star`` indices).
+    stars : sweep.structs.StarTable
+        Their host stars (``distance_pc`` [pc]).
+    """
+    rad_per_au = AU_M / (PC_M * np.asarray(stars.distance_pc, np.float64))
+    return planets.separation_au * rad_per_au[planets.star]
+
+
+def angular_window(theta, inner_per_um, outer_per_um, bands, row) -> np.ndarray:
+    """Planets between an inner and an outer angular limit that scale with wavelength, per band.
+
+    ``inner_per_um * lambda <= theta <= outer_per_um * lambda`` with ``lambda`` each band's centre.
+
+    Parameters
+    ----------
+    theta : ndarray, shape (n_planets,)
+        Angular separation of each planet [rad].
+    inner_per_um, outer_per_um : float or ndarray
+        The limits per micrometre of wavelength, per planet [rad um^-1].
+    bands : list of BandSchema
+        The resolved bands (``center_um`` a float or a per-row array) [um].
+    row : ndarray of int
+        Row of each planet (``planets.row``).
+
+    Returns
+    -------
+    ndarray of bool, shape (n_bands, n_planets)
+    """
+    out = np.empty((len(bands), len(theta)), dtype=bool)
+    for i, band in enumerate(bands):
+        center = per_planet(band.center_um, row)
+        np.greater_equal(theta, inner_per_um * center, out=out[i])
+        out[i] &= theta <= outer_per_um * center
+    return out
+
+
+def sensitivity_scale(reference_diameter_m, diameter_m, row):
+    """Factor on flux limits given for a reference aperture: ``(reference / D)^2``, or 1 without one.
+
+    Parameters
+    ----------
+    reference_diameter_m : float, ndarray or None
+        Resolved ``sensitivity_reference_diameter_m`` [m]; None: the limits do not depend on D.
+    diameter_m : float or ndarray
+        Aperture (or collector) diameter at each planet [m].
+    row : ndarray of int
+        Row of each planet (``planets.row``).
+    """
+    if reference_diameter_m is None:
+        return 1.0
+    return (per_planet(reference_diameter_m, row) / diameter_m) ** 2
+
+
+def star_blackbody_uJy(center_um, width_um, stars, index=slice(None)):
+    """Blackbody flux density of stars in a band (T_eff and radius at their distance) [uJy].
+
+    Parameters
+    ----------
+    center_um, width_um : float or ndarray
+        Band centre and full width [um].
+    stars : sweep.structs.StarTable
+        The star list.
+    index : slice or ndarray of int, optional
+        Stars to evaluate (every star by default; ``planets.star`` for one value per planet).
+    """
+    return radiation.blackbody_flux_density_uJy(
+        center_um, width_um, np.asarray(stars.teff_K, np.float64)[index],
+        np.asarray(stars.radius_rsun, np.float64)[index] * R_SUN_M,
+        np.asarray(stars.distance_pc, np.float64)[index] * PC_M)
 
 
 class LastResult:

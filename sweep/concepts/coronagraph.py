@@ -72,19 +72,22 @@ from pydantic import Field, model_validator
 from sweep.concepts import (
     BandSchema,
     Concept,
-    ConceptSchema,
     LastResult,
+    angular_separation_rad,
+    angular_window,
     cache_key,
     is_scalar,
     per_planet,
     register,
+    sensitivity_scale,
+    star_blackbody_uJy,
 )
-from sweep.concepts.noise_budget import NoiseSchema, SnrDetection, check_detection_keys, instrument_rate
+from sweep.concepts.noise_budget import (DetectionSchema, NoiseSchema, SnrDetection, check_detection_keys,
+                                        instrument_rate)
 from sweep.errors import UserInputError
 from sweep.params import FractionParam, Param, PositiveParam, bounds
 from sweep.physics import noise as nz
 from sweep.physics import radiation
-from sweep.physics._constants import AU_M, PC_M, R_SUN_M
 from sweep.physics.photometry import circular_area_m2, resolution_element_sr
 
 
@@ -127,14 +130,10 @@ class CoronagraphNoise(NoiseSchema):
     )
 
 
-class CoronagraphSchema(ConceptSchema):
+class CoronagraphSchema(DetectionSchema):
     """Section of a coronagraph concept."""
 
     kind: Literal["coronagraph"]
-    detection: Literal["threshold", "snr"] = Field(
-        default="threshold",
-        description="Detection model: 'threshold' (band flux limits) or 'snr' (the noise table).",
-    )
     aperture_diameter_m: PositiveParam = Field(description="Telescope aperture diameter [m].")
     inner_working_angle_lod: PositiveParam = Field(description="Inner working angle [lambda/D].")
     outer_working_angle_lod: PositiveParam = Field(description="Outer working angle [lambda/D].")
@@ -192,8 +191,7 @@ class Coronagraph(SnrDetection, Concept):
 
     def _planet_terms(self, planets, stars):
         def compute():
-            rad_per_au = AU_M / (PC_M * np.asarray(stars.distance_pc, np.float64))
-            return np.atleast_1d(self.contrast(planets)), planets.separation_au * rad_per_au[planets.star]
+            return np.atleast_1d(self.contrast(planets)), angular_separation_rad(planets, stars)
 
         return self._planet_cache.get(planets, (id(stars),), compute)
 
@@ -229,11 +227,7 @@ class Coronagraph(SnrDetection, Concept):
             center, width = per_planet(band.center_um, row), per_planet(band.width_um, row)
             zero_point = None if band.zero_point_Jy is None else per_planet(band.zero_point_Jy, row)
             index = star_index
-        distance_m = np.asarray(stars.distance_pc, np.float64)[index] * PC_M
-        flux = radiation.blackbody_flux_density_uJy(
-            center, width, np.asarray(stars.teff_K, np.float64)[index],
-            np.asarray(stars.radius_rsun, np.float64)[index] * R_SUN_M, distance_m)
-        flux = np.atleast_1d(np.asarray(flux, np.float64))
+        flux = np.atleast_1d(np.asarray(star_blackbody_uJy(center, width, stars, index), np.float64))
         if mags is not None:
             m = mags[index]
             known = np.isfinite(m)
@@ -262,25 +256,18 @@ class Coronagraph(SnrDetection, Concept):
         diameter = per_planet(params.aperture_diameter_m, row)
         inner_per_um = per_planet(params.inner_working_angle_lod, row) * 1e-6 / diameter
         outer_per_um = per_planet(params.outer_working_angle_lod, row) * 1e-6 / diameter
-        out = np.empty((len(params.bands), len(planets)), dtype=bool)
-        for i, band in enumerate(params.bands):
-            center = per_planet(band.center_um, row)
-            np.greater_equal(theta, inner_per_um * center, out=out[i])
-            out[i] &= theta <= outer_per_um * center
+        out = angular_window(theta, inner_per_um, outer_per_um, params.bands, row)
         if params.contrast_floor is not None:
             out &= contrast >= per_planet(params.contrast_floor, row)
         return out
 
-    def detect(self, planets, stars, params, block=None) -> np.ndarray:
-        if params.detection == "snr":
-            return self.detect_snr(planets, stars, params, block)
+    def detect_threshold(self, planets, stars, params) -> np.ndarray:
+        """Inside the field and the collected flux at least the band's flux limit: bool, (n_bands, n_planets)."""
         row = planets.row
         contrast, _ = self._planet_terms(planets, stars)
         diameter = per_planet(params.aperture_diameter_m, row)
         collected = contrast * per_planet(params.throughput, row)
-        scale = 1.0
-        if params.sensitivity_reference_diameter_m is not None:
-            scale = (per_planet(params.sensitivity_reference_diameter_m, row) / diameter) ** 2
+        scale = sensitivity_scale(params.sensitivity_reference_diameter_m, diameter, row)
         out = self.inside(planets, stars, params)
         for i, band in enumerate(params.bands):
             star_flux = self._star_flux_at_planets(i, band, planets, stars)

@@ -68,18 +68,22 @@ from pydantic import BaseModel, ConfigDict, Field, model_validator
 from sweep.concepts import (
     BandSchema,
     Concept,
-    ConceptSchema,
     LastResult,
+    angular_separation_rad,
+    angular_window,
     cache_key,
     is_scalar,
     per_planet,
     register,
+    sensitivity_scale,
+    star_blackbody_uJy,
 )
-from sweep.concepts.noise_budget import NoiseSchema, SnrDetection, check_detection_keys, instrument_rate
+from sweep.concepts.noise_budget import (DetectionSchema, NoiseSchema, SnrDetection, check_detection_keys,
+                                        instrument_rate)
 from sweep.params import FractionParam, PositiveParam, bounds
 from sweep.physics import habitability, radiation
 from sweep.physics import noise as nz
-from sweep.physics._constants import AU_M, PC_M, R_EARTH_M, R_SUN_M
+from sweep.physics._constants import AU_M, PC_M, R_EARTH_M
 from sweep.physics.photometry import SINGLE_MODE_RADIUS_LOD, circular_area_m2, resolution_element_sr
 
 
@@ -129,14 +133,10 @@ class BaselineTuning(BaseModel):
         return self
 
 
-class InterferometerSchema(ConceptSchema):
+class InterferometerSchema(DetectionSchema):
     """Section of a nulling-interferometer concept."""
 
     kind: Literal["interferometer"]
-    detection: Literal["threshold", "snr"] = Field(
-        default="threshold",
-        description="Detection model: 'threshold' (band flux limits) or 'snr' (the noise table).",
-    )
     collector_diameter_m: PositiveParam = Field(description="Diameter of each collector [m].")
     baseline_m: PositiveParam | None = Field(
         default=None, description="Fixed nulling baseline [m] (or give baseline_tuning)."
@@ -238,11 +238,7 @@ class Interferometer(SnrDetection, Concept):
         return self._flux_cache[index].get(planets, _key(stars, band.center_um, band.width_um), compute)
 
     def _angle_rad(self, planets, stars):
-        def compute():
-            rad_per_au = AU_M / (PC_M * np.asarray(stars.distance_pc, np.float64))
-            return planets.separation_au * rad_per_au[planets.star]
-
-        return self._angle_cache.get(planets, (id(stars),), compute)
+        return self._angle_cache.get(planets, (id(stars),), lambda: angular_separation_rad(planets, stars))
 
     def baseline_m(self, planets, stars, params) -> np.ndarray | float:
         """Nulling baseline for every planet's star [m] (a float when fixed)."""
@@ -267,21 +263,13 @@ class Interferometer(SnrDetection, Concept):
         # inner * lambda <= theta <= outer * lambda, with the lambda-free parts per planet
         inner_per_um = per_planet(params.inner_limit_lambda_over_b, row) * 1e-6 / baseline
         outer_per_um = per_planet(params.outer_limit_lod, row) * 1e-6 / diameter
-        out = np.empty((len(params.bands), len(planets)), dtype=bool)
-        for i, band in enumerate(params.bands):
-            center = per_planet(band.center_um, row)
-            np.greater_equal(theta, inner_per_um * center, out=out[i])
-            out[i] &= theta <= outer_per_um * center
-        return out
+        return angular_window(theta, inner_per_um, outer_per_um, params.bands, row)
 
-    def detect(self, planets, stars, params, block=None) -> np.ndarray:
-        if params.detection == "snr":
-            return self.detect_snr(planets, stars, params, block)
+    def detect_threshold(self, planets, stars, params) -> np.ndarray:
+        """Inside the field and the thermal flux at least the band's flux limit: bool, (n_bands, n_planets)."""
         row = planets.row
-        scale = 1.0
-        if params.sensitivity_reference_diameter_m is not None:
-            scale = (per_planet(params.sensitivity_reference_diameter_m, row)
-                     / per_planet(params.collector_diameter_m, row)) ** 2
+        scale = sensitivity_scale(params.sensitivity_reference_diameter_m,
+                                  per_planet(params.collector_diameter_m, row), row)
         out = self.inside(planets, stars, params)
         for i, band in enumerate(params.bands):
             flux = self._band_flux(i, band, planets, stars)
@@ -290,19 +278,14 @@ class Interferometer(SnrDetection, Concept):
 
     def star_flux_uJy(self, index, band, planets, stars) -> np.ndarray:
         """Blackbody flux density of each planet's star in a band [uJy]."""
-        def per_star(center, width, star):
-            return radiation.blackbody_flux_density_uJy(
-                center, width, np.asarray(stars.teff_K, np.float64)[star],
-                np.asarray(stars.radius_rsun, np.float64)[star] * R_SUN_M,
-                np.asarray(stars.distance_pc, np.float64)[star] * PC_M)
-
         if is_scalar(band.center_um, band.width_um):
             flux = self._star_cache[index].get(stars, cache_key(band.center_um, band.width_um),
-                                               lambda: np.atleast_1d(per_star(band.center_um, band.width_um,
-                                                                              slice(None))))
+                                               lambda: np.atleast_1d(star_blackbody_uJy(band.center_um,
+                                                                                        band.width_um, stars)))
             return flux[planets.star]
         row = planets.row
-        return per_star(per_planet(band.center_um, row), per_planet(band.width_um, row), planets.star)
+        return star_blackbody_uJy(per_planet(band.center_um, row), per_planet(band.width_um, row), stars,
+                                  planets.star)
 
     def noise_rates(self, planets, stars, params, block=None) -> list:
         """Count rates of every planet in every band (``detection = "snr"``).

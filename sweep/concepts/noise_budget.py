@@ -34,7 +34,7 @@ from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 from sweep import params as _params
 from sweep import streams
-from sweep.concepts import LastResult, cache_key, is_scalar, nominal, per_planet
+from sweep.concepts import ConceptSchema, LastResult, cache_key, is_scalar, nominal, per_planet
 from sweep.params import FractionParam, NonNegativeParam, PositiveParam, bounds
 from sweep.physics import noise as nz
 from sweep.physics import orbits, radiation, sky
@@ -144,6 +144,15 @@ class NoiseSchema(BaseModel):
             raise ValueError(f"{unused} is not used with time_allocation = {self.time_allocation!r}; "
                              f"give {wanted}")
         return self
+
+
+class DetectionSchema(ConceptSchema):
+    """Fields of a concept kind with both detection models (band flux limits, or SNR)."""
+
+    detection: Literal["threshold", "snr"] = Field(
+        default="threshold",
+        description="Detection model: 'threshold' (band flux limits) or 'snr' (the noise table).",
+    )
 
 
 def check_detection_keys(section, band_limit_keys: tuple[str, ...], threshold_only: tuple[str, ...] = ()):
@@ -301,10 +310,21 @@ class SnrDetection:
     """Mix-in of the concepts that detect by SNR.
 
     The concept provides ``inside(planets, stars, params)`` (its field: working angles, contrast
-    floor; bool, (n_bands, n_planets)) and ``noise_rates(planets, stars, params, block=None)`` (one
-    :class:`~sweep.physics.noise.NoiseRates` per band); this class adds exozodi levels, integration
-    times, SNRs, masks and the time a sweep implies.
+    floor; bool, (n_bands, n_planets)), ``noise_rates(planets, stars, params, block=None)`` (one
+    :class:`~sweep.physics.noise.NoiseRates` per band) and ``detect_threshold(planets, stars,
+    params)`` (the band-flux-limit masks); this class adds :meth:`detect`, exozodi levels,
+    integration times, SNRs, masks and the time a sweep implies.
     """
+
+    def detect(self, planets, stars, params, block=None) -> np.ndarray:
+        """Detection masks of the section's ``detection`` model, bool, (n_bands, n_planets).
+
+        ``"snr"``: :meth:`detect_snr`; ``"threshold"``: the kind's ``detect_threshold(planets,
+        stars, params)`` (band flux limits). Arguments as for :meth:`sweep.concepts.Concept.detect`.
+        """
+        if params.detection == "snr":
+            return self.detect_snr(planets, stars, params, block)
+        return self.detect_threshold(planets, stars, params)
 
     def _init_snr(self, n_bands: int):
         self._uniform_cache = LastResult()

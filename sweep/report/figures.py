@@ -56,6 +56,19 @@ def _at_reference(da: xr.DataArray, axes, skip=()) -> xr.DataArray:
     return da.isel(point)
 
 
+def _panels_and_bounds(ds: xr.Dataset, output: str, axes):
+    """``output`` at the reference grid point split by concept (:func:`_by_concept`), and its
+    ``_low`` and ``_high`` bounds there."""
+    est, low, high = (_at_reference(ds[name], axes) for name in (output, f"{output}_low", f"{output}_high"))
+    return _by_concept(est), low, high
+
+
+def _with_reference(text: str, da: xr.DataArray, axes, end: str = ".") -> str:
+    """A caption: ``text``, the reference grid point of ``da`` (if any) after a comma, then ``end``."""
+    rest = reference_label(da, axes)
+    return text + (f", {rest}" if rest else "") + end
+
+
 def _by_concept(da: xr.DataArray):
     if "concept" in da.dims:
         return [(str(c), da.sel(concept=c)) for c in da["concept"].values]
@@ -157,9 +170,8 @@ def radius_teq_grid(iv_cat: xr.Dataset, output: str, grid, out_dir) -> FigureFil
         ax.set_ylabel("radius bin")
         ax.set_title(concept or output, fontsize="medium")
         fig.colorbar(image, ax=ax, label=f"median {output}{_units(iv_cat[output])}")
-    rest = reference_label(iv_cat[output], grid)
-    caption = (f"Median {output} per planet-radius bin and equilibrium-temperature bin"
-               + (f", {rest}" if rest else "") + ".")
+    caption = _with_reference(f"Median {output} per planet-radius bin and equilibrium-temperature bin",
+                              iv_cat[output], grid)
     return _save(fig, out_dir, "radius_teq_grid", "Detections by radius and temperature", caption)
 
 
@@ -186,18 +198,14 @@ def band_multiplicity(iv: xr.Dataset, grid, out_dir, output: str = "band_multipl
     ax.set_xlabel("number of bands detected in")
     ax.set_ylabel(f"planets{_units(iv[output])}")
     ax.legend(fontsize="small")
-    rest = reference_label(iv[output], grid)
-    caption = (f"Median number of planets by the number of bands they are detected in, with "
-               f"{level:.0%} credible intervals" + (f", {rest}" if rest else "") + ".")
+    caption = _with_reference(f"Median number of planets by the number of bands they are detected in, "
+                              f"with {level:.0%} credible intervals", iv[output], grid)
     return _save(fig, out_dir, "band_multiplicity", "Detections by number of bands", caption)
 
 
 def sobol_bars(sb: xr.Dataset, output: str, grid, out_dir) -> FigureFile:
     """First-order and total Sobol indices of ``output`` per factor, with bootstrap intervals."""
-    est = _at_reference(sb[output], grid)
-    low = _at_reference(sb[f"{output}_low"], grid)
-    high = _at_reference(sb[f"{output}_high"], grid)
-    panels = _by_concept(est)
+    panels, low, high = _panels_and_bounds(sb, output, grid)
     fig, axes = _figure(1, len(panels), width=max(4.0, 0.9 * sb.sizes["factor"] + 2), height=4.0)
     factors = [str(f) for f in sb["factor"].values]
     x = np.arange(len(factors))
@@ -216,19 +224,15 @@ def sobol_bars(sb: xr.Dataset, output: str, grid, out_dir) -> FigureFile:
         ax.set_ylabel("Sobol index")
         ax.set_title(concept or output, fontsize="medium")
         ax.legend(fontsize="small")
-    rest = reference_label(sb[output], grid)
-    caption = (f"First-order (S1) and total (ST) Sobol indices of {output} with "
-               f"{sb.attrs['confidence_level']:.0%} bootstrap intervals, from "
-               f"{sb.attrs['base_rows']} base rows" + (f", {rest}" if rest else "") + ".")
+    caption = _with_reference(f"First-order (S1) and total (ST) Sobol indices of {output} with "
+                              f"{sb.attrs['confidence_level']:.0%} bootstrap intervals, from "
+                              f"{sb.attrs['base_rows']} base rows", sb[output], grid)
     return _save(fig, out_dir, "sobol_indices", "Sobol indices", caption)
 
 
 def sobol_convergence(cv: xr.Dataset, output: str, grid, out_dir) -> FigureFile:
     """The indices of ``output`` against the number of base rows used, with bootstrap bands."""
-    est = _at_reference(cv[output], grid)
-    low = _at_reference(cv[f"{output}_low"], grid)
-    high = _at_reference(cv[f"{output}_high"], grid)
-    panels = _by_concept(est)
+    panels, low, high = _panels_and_bounds(cv, output, grid)
     fig, axes = _figure(len(panels), 2, width=4.8, height=3.4)
     n = cv["base_rows"].values
     for row, (concept, part) in zip(axes, panels):
@@ -277,7 +281,6 @@ def yield_distribution(ds: xr.Dataset, iv: xr.Dataset, output: str, grid, out_di
         ax.set_ylabel("rows")
         ax.set_title(concept or output, fontsize="medium")
         ax.legend(fontsize="x-small")
-    rest = reference_label(iv[output], grid)
-    caption = (f"Distribution of {output} over {use.size} independent rows"
-               + (f", {rest}" if rest else "") + "; median and credible intervals marked.")
+    caption = _with_reference(f"Distribution of {output} over {use.size} independent rows", iv[output], grid,
+                              "; median and credible intervals marked.")
     return _save(fig, out_dir, "yield_distribution", "Distribution of the yield", caption)
