@@ -179,6 +179,8 @@ def band_multiplicity(iv: xr.Dataset, grid, out_dir, output: str = "band_multipl
                       level: float = 0.68) -> FigureFile:
     """Median number of planets by the number of bands they are detected in, per concept, with
     the credible interval at ``level`` as error bars."""
+    if "n_bands" in iv[output].dims and iv.sizes["n_bands"] > 1:
+        iv = iv.isel(n_bands=slice(1, None))  # planets seen in no band would dwarf the rest
     quant = _at_reference(iv[output], grid)
     sub = iv.assign({output: quant})
     med = median(sub, output)
@@ -191,15 +193,15 @@ def band_multiplicity(iv: xr.Dataset, grid, out_dir, output: str = "band_multipl
     for k, (concept, part) in enumerate(panels):
         sel = {"concept": concept} if concept else {}
         lo, hi = low.sel(sel).values, high.sel(sel).values
-        x = np.arange(len(n_bands)) + (k - (len(panels) - 1) / 2) * width
+        x = np.asarray(n_bands, float) + (k - (len(panels) - 1) / 2) * width
         ax.bar(x, part.values, width, label=concept or output,
                yerr=[np.maximum(part.values - lo, 0), np.maximum(hi - part.values, 0)], capsize=3)
-    ax.set_xticks(range(len(n_bands)), [str(v) for v in n_bands])
+    ax.set_xticks(np.asarray(n_bands, float), [str(v) for v in n_bands])
     ax.set_xlabel("number of bands detected in")
-    ax.set_ylabel(f"planets{_units(iv[output])}")
+    ax.set_ylabel(f"planets detected{_units(iv[output])}")
     ax.legend(fontsize="small")
-    caption = _with_reference(f"Median number of planets by the number of bands they are detected in, "
-                              f"with {level:.0%} credible intervals", iv[output], grid)
+    caption = _with_reference(f"Median number of planets by the number of bands they are detected in "
+                              f"(one or more), with {level:.0%} credible intervals", iv[output], grid)
     return _save(fig, out_dir, "band_multiplicity", "Detections by number of bands", caption)
 
 
