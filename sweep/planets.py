@@ -185,6 +185,27 @@ class PriorsSection(BaseModel):
         return self
 
 
+def _log1p(y: np.ndarray) -> np.ndarray:
+    """``ln(1 + y)`` for y > -1, as ``ln(w) y / (w - 1)`` with ``w = 1 + y`` (``y`` where w = 1).
+
+    Accurate to a few units in the last place like ``np.log1p`` (the rounding of ``w`` cancels
+    in the ratio), at half its cost: ``np.log`` is vectorised, ``np.log1p`` is not.
+
+    References
+    ----------
+    .. [1] Goldberg, D. 1991, "What every computer scientist should know about floating-point
+       arithmetic", ACM Computing Surveys 23, 5, Theorem 4; doi:10.1145/103162.103163 (from memory).
+    """
+    w = y + 1.0
+    ratio = np.subtract(w, 1.0)
+    exact = ratio == 0.0  # |y| below half an ulp of 1: ln(1 + y) = y to rounding
+    np.divide(y, ratio, out=ratio, where=~exact)
+    x = np.log(w, out=w)
+    x *= ratio
+    np.copyto(x, y, where=exact)
+    return x
+
+
 class _WithinCell:
     """Inverse CDF of the density ``∝ exp(exponent x)`` on each cell's [low, high] (x = ln R or ln P).
 
@@ -204,7 +225,7 @@ class _WithinCell:
     def __call__(self, u, cell):
         scaled = u * self.scale[cell]
         if not self.flat.any():  # power laws: every cell has an exponent
-            x = np.log1p(scaled, out=scaled)
+            x = _log1p(scaled)
             x *= self.inverse[cell]
         elif self.flat.all():  # binned tables: log-uniform in every cell
             x = scaled
@@ -278,16 +299,17 @@ def choose_cells(layout: _Layout, star: np.ndarray, u: np.ndarray) -> np.ndarray
     return np.minimum(cell, layout.star_last[star])
 
 
-def _excess(layout: _Layout, excess: np.ndarray, rng: np.random.Generator):
-    """Planets of one row above the envelope: Poisson per cell, hosts uniform in the class."""
-    n_cells = layout.n_cells
-    per_cell = rng.poisson(excess * np.repeat(layout.class_count, n_cells))
-    cell = np.repeat(np.arange(len(per_cell)), per_cell)
-    uniforms = rng.random((N_UNIFORMS, len(cell)))
-    klass = cell // n_cells
-    pick = np.minimum((uniforms[_CELL] * layout.class_count[klass]).astype(np.intp), layout.class_count[klass] - 1)
-    star = layout.by_class[layout.class_offset[klass] + pick]
-    return star, cell, uniforms
+def _excess_cells(layout: _Layout, excess: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+    """Cell of each planet of one row above the envelope: Poisson per cell (the stream's first draw)."""
+    per_cell = rng.poisson(excess * np.repeat(layout.class_count, layout.n_cells))
+    return np.repeat(np.arange(len(per_cell)), per_cell)
+
+
+def _excess_hosts(layout: _Layout, cell: np.ndarray, u_cell: np.ndarray) -> np.ndarray:
+    """Host of each planet above the envelope: uniform among the stars of its cell's class."""
+    klass = cell // layout.n_cells
+    pick = np.minimum((u_cell * layout.class_count[klass]).astype(np.intp), layout.class_count[klass] - 1)
+    return layout.by_class[layout.class_offset[klass] + pick]
 
 
 def draw_planets(block: RowBlock, stars: StarTable, occurrence: OccurrenceModel,
@@ -313,7 +335,7 @@ def draw_planets(block: RowBlock, stars: StarTable, occurrence: OccurrenceModel,
         One entry per planet, ordered by row, with the row (within the block) and the star index.
     """
     layout = _Layout(stars, occurrence)
-    n_rows = len(block)
+    n_rows, n_stars = len(block), len(stars)
     rates = occurrence.cell_rates(block.factors, n_rows).reshape(n_rows, -1)
     excess = np.maximum(rates - layout.envelope, 0.0)
     has_excess = (excess > 0).any(axis=1)
@@ -323,40 +345,70 @@ def draw_planets(block: RowBlock, stars: StarTable, occurrence: OccurrenceModel,
     # its cell: only the others are kept for the block-wide pass below (all of the kept ones, and
     # only them, when the rates move together)
     row_max = ratio.max(axis=1, initial=0.0)
-    counts, positions, picked, extra = [], [], [], []
-    for r in range(n_rows):  # one generator per row, keyed by what the row is; vectorised over stars
+    # first pass: one generator per row, keyed by what the row is, and its Poisson draws (each
+    # stream's first draw), which bound the number of planets of the block
+    generators, counts, extra = [], [], {}
+    for r in range(n_rows):
         key = (block.seed, block.base_index[r], block.population_source[r])
         rng = streams.row_generator(*key, streams.CANDIDATES)
         counts.append(rng.poisson(layout.star_envelope))
-        uniforms = rng.random((N_UNIFORMS, int(counts[-1].sum())))
-        maybe = np.flatnonzero(uniforms[_ACCEPT] < row_max[r])
-        positions.append(maybe)
-        picked.append(uniforms[:, maybe])
+        generators.append(rng)
         if has_excess[r]:
-            extra.append((r, *_excess(layout, excess[r], streams.row_generator(*key, streams.EXCESS))))
-    # host and row of every candidate left: its place in the block's (row, star) candidate counts
-    n_stars = len(stars)
-    counts = np.concatenate(counts + [np.zeros(0, np.int64)])
-    host = np.repeat(np.arange(len(counts)), counts)  # (row, star), flattened, of every candidate
+            x_rng = streams.row_generator(*key, streams.EXCESS)
+            extra[r] = (x_rng, _excess_cells(layout, excess[r], x_rng))
+    counts = np.concatenate(counts + [np.zeros(0, np.int64)])  # by (row, star)
     sizes = counts.reshape(n_rows, n_stars).sum(axis=1) if n_rows and n_stars else np.zeros(n_rows, np.int64)
-    row_starts = np.concatenate([[0], np.cumsum(sizes)[:-1]]).astype(np.int64)
-    place = np.concatenate([p + start for p, start in zip(positions, row_starts)] + [np.zeros(0, np.int64)])
-    row, star = np.divmod(host[place], max(n_stars, 1))
-    u = np.concatenate(picked + [np.zeros((N_UNIFORMS, 0))], axis=1)
+    first = np.concatenate([[0], np.cumsum(sizes)]).astype(np.int64)  # first candidate of each row
+    n_extra = [len(x[1]) for x in extra.values()]
+    # second pass: each row's uniforms, one (N_UNIFORMS, n) draw into a scratch buffer that stays
+    # in cache; the candidates that may be kept, then the row's excess planets, are copied into
+    # the columns of ``u``, in the order of the batch (by row)
+    scratch = np.empty(N_UNIFORMS * max([int(sizes.max(initial=0))] + n_extra))
+    u = np.empty((N_UNIFORMS, int(first[-1]) + sum(n_extra)))
+    maybe = np.empty(int(first[-1]), bool)  # of every candidate
+    per_row = np.zeros(n_rows, np.int64)  # columns of each row
+    extra_columns, extra_stars, extra_cells = [], [], []
+    end = 0
+    for r, rng in enumerate(generators):
+        n, row_start = int(sizes[r]), end
+        uniforms = scratch[:N_UNIFORMS * n].reshape(N_UNIFORMS, n)
+        rng.random(out=uniforms)
+        row_maybe = np.less(uniforms[_ACCEPT], row_max[r], out=maybe[first[r]:first[r + 1]])
+        start, end = end, end + int(np.count_nonzero(row_maybe))
+        np.compress(row_maybe, uniforms, axis=1, out=u[:, start:end])
+        if r in extra:
+            x_rng, x_cells = extra[r]
+            start, end = end, end + len(x_cells)
+            x_uniforms = scratch[:N_UNIFORMS * len(x_cells)].reshape(N_UNIFORMS, len(x_cells))
+            x_rng.random(out=x_uniforms)
+            u[:, start:end] = x_uniforms
+            extra_columns.append(np.arange(start, end))
+            extra_stars.append(_excess_hosts(layout, x_cells, x_uniforms[_CELL]))
+            extra_cells.append(x_cells)
+        per_row[r] = end - row_start
+    u = u[:, :end]
+    row = np.repeat(np.arange(n_rows, dtype=np.int64), per_row)
+    # host of every candidate left: the star of its place in the block's (row, star) counts
+    star = np.compress(maybe, np.repeat(np.tile(np.arange(n_stars, dtype=np.int64), n_rows), counts))
+    if extra:
+        extra_columns = np.concatenate(extra_columns)
+        is_candidate = np.ones(end, bool)
+        is_candidate[extra_columns] = False
+        star_all = np.empty(end, np.int64)
+        star_all[is_candidate] = star
+        star_all[extra_columns] = np.concatenate(extra_stars)
+        star = star_all
+    # cells and thinning of the candidates (done for every column: the excess planets' results
+    # are then replaced by their own cells, and they are all kept)
     cell = choose_cells(layout, star, u[_CELL])
     kept = u[_ACCEPT] < ratio[row, cell]
+    if extra:
+        cell[extra_columns] = np.concatenate(extra_cells)
+        kept[extra_columns] = True
+    u = u[_PROPERTIES]
     if not kept.all():
         row, star, cell, u = row[kept], star[kept], cell[kept], u[:, kept]
-    u = u[_PROPERTIES]
-    if extra:  # planets above the envelope go after the row's other planets
-        row = np.concatenate([row] + [np.full(len(x[1]), x[0]) for x in extra])
-        star = np.concatenate([star] + [x[1] for x in extra])
-        cell = np.concatenate([cell] + [x[2] for x in extra])
-        u = np.concatenate([u] + [x[3][_PROPERTIES] for x in extra], axis=1)
-        order = np.argsort(row, kind="stable")
-        row, star, cell, u = row[order], star[order], cell[order], u[:, order]
-    return _properties(row.astype(np.int64, copy=False), star.astype(np.int64, copy=False), cell, u, stars,
-                       occurrence, priors_resolved)
+    return _properties(row, star, cell, u, stars, occurrence, priors_resolved)
 
 
 def _properties(row, star, cell, u, stars: StarTable, occurrence: OccurrenceModel,
@@ -365,7 +417,7 @@ def _properties(row, star, cell, u, stars: StarTable, occurrence: OccurrenceMode
     u_lnr, u_lnp, u_cosi, u_mean_anomaly, u_periapsis, u_bond, u_geometric, u_ecc = u
     lnr = _WithinCell(occurrence.alpha, occurrence.lnr_lo, occurrence.lnr_hi)(u_lnr, cell)
     lnp = _WithinCell(occurrence.beta, occurrence.lnp_lo, occurrence.lnp_hi)(u_lnp, cell)
-    radius, period = np.exp(lnr, out=lnr), np.exp(lnp, out=lnp)
+    radius, period = np.exp(lnr), np.exp(lnp, out=lnp)
     cos_i = np.multiply(u_cosi, -2.0)
     cos_i += 1.0
     sin_i = np.sqrt((1.0 - cos_i) * (1.0 + cos_i))  # sin(arccos c) >= 0, accurate near c = +-1
@@ -380,7 +432,7 @@ def _properties(row, star, cell, u, stars: StarTable, occurrence: OccurrenceMode
     circular = priors.eccentricity is None
     eccentricity = np.zeros(len(row)) if circular else priors.eccentricity.ppf(u_ecc, row)
     star_mass = stars.mass_msun[star]
-    mass = masses.chen_kipping2017_mass_mearth(radius)
+    mass = masses.chen_kipping2017_mass_mearth(radius, ln_radius=lnr)
     sma = orbits.semi_major_axis_au(period, star_mass, mass)
     separation, distance, phase = orbits.sky_geometry(sma, eccentricity, inclination, periapsis, mean_anomaly,
                                                        cos_inclination=cos_i, sin_inclination=sin_i)
@@ -395,7 +447,7 @@ def _properties(row, star, cell, u, stars: StarTable, occurrence: OccurrenceMode
         teq_distance = sma * np.sqrt(flux_factor)
     teq = radiation.equilibrium_temperature_K(stars.teff_K[star], stars.radius_rsun[star], teq_distance, bond,
                                               priors.redistribution)
-    rv = masses.rv_semi_amplitude_ms(mass, star_mass, period, inclination, eccentricity)
+    rv = masses.rv_semi_amplitude_from_orbit_ms(mass, star_mass, period, sma, sin_i, eccentricity)
     return PlanetBatch(
         row=row, star=star, radius_rearth=radius, period_d=period, semi_major_axis_au=sma,
         eccentricity=eccentricity, inclination_rad=inclination, arg_periapsis_rad=periapsis,

@@ -54,3 +54,30 @@ def test_rv_semi_amplitude_scalings_and_broadcasting():
     m_p, m_s = 10 * const.M_earth.value, const.M_sun.value
     assert masses.rv_semi_amplitude_ms(10.0, 1.0, 100.0) == pytest.approx(
         v_rel * m_p / (m_s + m_p), rel=1e-12)
+
+
+def test_rv_semi_amplitude_from_orbit_equals_the_kepler_form():
+    # K = 2 pi a sin i m_p / (P (M_* + m_p) sqrt(1 - e^2)) with a from Kepler's third law is
+    # K = (2 pi G / P)^(1/3) m_p sin i / (M_* + m_p)^(2/3) / sqrt(1 - e^2) (Lovis & Fischer 2010,
+    # eq. 1; Murray & Dermott 1999, sec. 2.7): equal to rounding
+    rng = np.random.default_rng(3)
+    m_p, m_s = 10 ** rng.uniform(-1, 3.5, 500), rng.uniform(0.08, 1.5, 500)
+    period, inc, ecc = 10 ** rng.uniform(0, 4, 500), np.arccos(rng.uniform(-1, 1, 500)), rng.uniform(0, 0.9, 500)
+    sma = orbits.semi_major_axis_au(period, m_s, m_p)
+    expected = masses.rv_semi_amplitude_ms(m_p, m_s, period, inc, ecc)
+    got = masses.rv_semi_amplitude_from_orbit_ms(m_p, m_s, period, sma, np.sin(inc), ecc)
+    np.testing.assert_allclose(got, expected, rtol=1e-12)
+    np.testing.assert_allclose(masses.rv_semi_amplitude_ms(m_p, m_s, period, sin_inclination=np.sin(inc),
+                                                           eccentricity=ecc), expected, rtol=1e-15)
+    # scalars in, scalar out; edge-on circular by default
+    k = masses.rv_semi_amplitude_from_orbit_ms(1.0, 1.0, 365.25, orbits.semi_major_axis_au(365.25, 1.0, 1.0))
+    assert np.ndim(k) == 0 and k == pytest.approx(masses.rv_semi_amplitude_ms(1.0, 1.0, 365.25), rel=1e-12)
+
+
+def test_chen_kipping_from_ln_radius_equals_the_power_form():
+    # the same relation through exp(S^-1 (ln R - ln R_TN)) instead of (R / R_TN)^(1/S): equal to rounding,
+    # on every branch and on the cap (produced by this code)
+    r = np.geomspace(0.3, 30.0, 2001)
+    np.testing.assert_allclose(masses.chen_kipping2017_mass_mearth(r, ln_radius=np.log(r)),
+                               masses.chen_kipping2017_mass_mearth(r), rtol=1e-13)
+    assert np.ndim(masses.chen_kipping2017_mass_mearth(2.0, ln_radius=np.log(2.0))) == 0

@@ -170,6 +170,24 @@ def test_orbits_albedos_and_derived_quantities():
     assert all(len(getattr(batch, name)) == len(batch) for name in FIELDS)
 
 
+def test_mass_and_rv_semi_amplitude_match_the_physics_functions():
+    # the draw computes the mass from ln R and K from the semi-major axis; equal to rounding to
+    # masses.chen_kipping2017_mass_mearth(R) and masses.rv_semi_amplitude_ms (produced by this code;
+    # K's tolerance allows for sin(arccos(c)), less accurate than the draw's sqrt((1 - c)(1 + c)) near c = -1)
+    from sweep.physics import masses
+    occ = model(kind="power-law", preset="sag13", uncertainty="none")
+    priors = planets.PriorsSection(eccentricity={"dist": "beta", "a": 0.867, "b": 3.03})
+    stars = sun_like(200)
+    stars.mass_msun[:] = np.linspace(0.1, 1.4, 200)
+    batch = draw(occ, stars, {}, priors=priors, stop=10)
+    assert len(batch) > 1000 and (batch.eccentricity > 0).any()
+    np.testing.assert_allclose(batch.mass_mearth, masses.chen_kipping2017_mass_mearth(batch.radius_rearth),
+                               rtol=1e-13)
+    expected = masses.rv_semi_amplitude_ms(batch.mass_mearth, stars.mass_msun[batch.star], batch.period_d,
+                                           batch.inclination_rad, batch.eccentricity)
+    np.testing.assert_allclose(batch.rv_semi_amplitude_ms, expected, rtol=1e-9)
+
+
 def test_priors_of_eccentricity_and_geometric_albedo():
     occ = model(kind="power-law", preset="sag13", uncertainty="none")
     priors = planets.PriorsSection(eccentricity={"dist": "beta", "a": 0.867, "b": 3.03},
@@ -329,3 +347,11 @@ def test_priors_rejected(bad, words):
     with pytest.raises(ValidationError) as info:
         planets.PriorsSection(**bad)
     assert words in str(info.value)
+
+
+def test_log1p_matches_numpy():
+    # ln(1 + y) by Goldberg's ratio (Goldberg 1991, ACM Computing Surveys 23, 5, Theorem 4) against
+    # numpy.log1p (reference library), down to |y| below the rounding of 1 + y
+    y = np.concatenate([np.linspace(-0.999, 20.0, 20001), np.geomspace(1e-25, 1e-2, 500),
+                        -np.geomspace(1e-25, 1e-2, 500), [0.0]])
+    np.testing.assert_allclose(planets._log1p(y.copy()), np.log1p(y), rtol=2e-15, atol=0)

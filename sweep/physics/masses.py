@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._constants import DAY_S, G_SI, M_EARTH_KG, M_JUP_KG, M_SUN_KG
+from ._constants import AU_M, DAY_S, G_SI, M_EARTH_KG, M_JUP_KG, M_SUN_KG
 
 #: Chen & Kipping 2017 mean relation, log10 R = C + S log10 M (Earth units): offset of the Terran
 #: regime, slopes of the Terran, Neptunian and Jovian regimes, and the transition masses
@@ -15,12 +15,16 @@ CHEN_KIPPING2017_SLOPES = {"terran": 0.2790, "neptunian": 0.589, "jovian": -0.04
 CHEN_KIPPING2017_TRANSITIONS_MEARTH = (2.04, 0.414 * M_JUP_KG / M_EARTH_KG,
                                        0.0800 * M_SUN_KG / M_EARTH_KG)
 
+_TWO_PI = 2.0 * np.pi
+_EARTH_IN_SUN = M_EARTH_KG / M_SUN_KG
+
 _S_T = CHEN_KIPPING2017_SLOPES["terran"]
 _S_N = CHEN_KIPPING2017_SLOPES["neptunian"]
 _M_TN, _M_NJ, _ = CHEN_KIPPING2017_TRANSITIONS_MEARTH
 #: Radii of the two lower transitions on the (continuous) mean relation [R_earth].
 _R_TN = 10.0**CHEN_KIPPING2017_TERRAN_C * _M_TN**_S_T
 _R_NJ = _R_TN * (_M_NJ / _M_TN) ** _S_N
+_LN_R_TN, _LN_R_NJ = np.log(_R_TN), np.log(_R_NJ)
 
 
 def _scalar_or_array(x):
@@ -28,7 +32,7 @@ def _scalar_or_array(x):
     return x[()] if x.ndim == 0 else x
 
 
-def chen_kipping2017_mass_mearth(radius_rearth):
+def chen_kipping2017_mass_mearth(radius_rearth, *, ln_radius=None):
     """Planet mass from radius by inverting the mean mass-radius relation of Chen & Kipping 2017.
 
     The relation is a continuous broken power law R = C M^S: Terran (S = 0.279, C = 10^0.00346)
@@ -44,6 +48,10 @@ def chen_kipping2017_mass_mearth(radius_rearth):
     ----------
     radius_rearth : float or array_like
         Planet radius [R_earth].
+    ln_radius : float or array_like, optional
+        ln of the radius in Earth radii [1], when the caller has it already: the mass is then
+        ``exp`` of a linear function of it rather than a power of the radius (equal to a few
+        units in the last place).
 
     Returns
     -------
@@ -56,16 +64,19 @@ def chen_kipping2017_mass_mearth(radius_rearth):
        other worlds", ApJ 834, 17; doi:10.3847/1538-4357/834/1/17 (parameters from memory).
     """
     r = np.asarray(radius_rearth, np.float64)
-    terran = _M_TN * (r / _R_TN) ** (1.0 / _S_T)
-    neptunian = _M_TN * (np.minimum(r, _R_NJ) / _R_TN) ** (1.0 / _S_N)
-    return _scalar_or_array(np.where(r <= _R_TN, terran, neptunian))
+    # one power per radius, with its own branch's exponent (the cap never reaches the Terran branch)
+    exponent = np.where(r <= _R_TN, 1.0 / _S_T, 1.0 / _S_N)
+    if ln_radius is None:
+        return _scalar_or_array(_M_TN * (np.minimum(r, _R_NJ) / _R_TN) ** exponent)
+    x = np.minimum(np.asarray(ln_radius, np.float64), _LN_R_NJ) - _LN_R_TN
+    return _scalar_or_array(_M_TN * np.exp(exponent * x))
 
 
 def rv_semi_amplitude_ms(planet_mass_mearth, star_mass_msun, period_d, inclination_rad=np.pi / 2,
-                         eccentricity=0.0):
+                         eccentricity=0.0, *, sin_inclination=None):
     """Radial-velocity semi-amplitude induced on the star by a planet.
 
-    K = (2 pi G / P)^(1/3) m_p sin i / (M_* + m_p)^(2/3) / sqrt(1 - e^2).
+    K = (2 pi G / (P (M_* + m_p)^2))^(1/3) m_p sin i / sqrt(1 - e^2).
 
     Parameters
     ----------
@@ -79,6 +90,8 @@ def rv_semi_amplitude_ms(planet_mass_mearth, star_mass_msun, period_d, inclinati
         Inclination of the orbit normal to the line of sight [rad]; pi/2 is edge-on.
     eccentricity : float or array_like, optional
         Orbital eccentricity [1].
+    sin_inclination : float or array_like, optional
+        sin i [1], when the caller has it already; it must be that of ``inclination_rad``.
 
     Returns
     -------
@@ -94,6 +107,56 @@ def rv_semi_amplitude_ms(planet_mass_mearth, star_mass_msun, period_d, inclinati
     m_s = np.asarray(star_mass_msun, np.float64) * M_SUN_KG
     p_s = np.asarray(period_d, np.float64) * DAY_S
     e = np.asarray(eccentricity, np.float64)
-    k = (np.cbrt(2.0 * np.pi * G_SI / p_s) * m_p * np.sin(np.asarray(inclination_rad, np.float64))
-         / np.cbrt(m_s + m_p) ** 2 / np.sqrt(1.0 - e * e))
+    if sin_inclination is None:
+        sin_inclination = np.sin(np.asarray(inclination_rad, np.float64))
+    total = m_s + m_p
+    k = np.cbrt(2.0 * np.pi * G_SI / (p_s * total * total)) * m_p * np.asarray(sin_inclination, np.float64)
+    if np.any(e):
+        k = k / np.sqrt(1.0 - e * e)
+    return _scalar_or_array(k)
+
+
+def rv_semi_amplitude_from_orbit_ms(planet_mass_mearth, star_mass_msun, period_d, semi_major_axis_au,
+                                    sin_inclination=1.0, eccentricity=0.0):
+    """Radial-velocity semi-amplitude of a planet whose relative orbit is known (no cube root).
+
+    K = 2 pi a sin i m_p / (P (M_* + m_p) sqrt(1 - e^2)): the star's speed on its orbit about the
+    barycentre, of semi-major axis a m_p / (M_* + m_p), projected on the line of sight. With the
+    ``a`` of Kepler's third law (:func:`sweep.physics.orbits.semi_major_axis_au`, same masses)
+    this equals :func:`rv_semi_amplitude_ms`.
+
+    Parameters
+    ----------
+    planet_mass_mearth : float or array_like
+        Planet mass [M_earth].
+    star_mass_msun : float or array_like
+        Stellar mass [M_sun].
+    period_d : float or array_like
+        Orbital period [d].
+    semi_major_axis_au : float or array_like
+        Semi-major axis of the relative orbit [au].
+    sin_inclination : float or array_like, optional
+        sin i, i the inclination of the orbit normal to the line of sight [1]; 1 is edge-on.
+    eccentricity : float or array_like, optional
+        Orbital eccentricity [1].
+
+    Returns
+    -------
+    float or ndarray
+        Semi-amplitude [m/s].
+
+    References
+    ----------
+    .. [1] Lovis, C. & Fischer, D. A. 2010, "Radial velocity techniques for exoplanets", in
+       Exoplanets, ed. S. Seager (University of Arizona Press), p. 27, eq. 1 (from memory).
+    .. [2] Murray, C. D. & Dermott, S. F. 1999, Solar System Dynamics (Cambridge University
+       Press), sec. 2.7 (barycentric orbits).
+    """
+    m_p = np.asarray(planet_mass_mearth, np.float64) * _EARTH_IN_SUN
+    a = np.asarray(semi_major_axis_au, np.float64) * (_TWO_PI * AU_M / DAY_S)  # 2 pi a / (1 d) [m/s]
+    k = a * m_p * np.asarray(sin_inclination, np.float64) / (
+        np.asarray(period_d, np.float64) * (np.asarray(star_mass_msun, np.float64) + m_p))
+    e = np.asarray(eccentricity, np.float64)
+    if np.any(e):
+        k = k / np.sqrt(1.0 - e * e)
     return _scalar_or_array(k)
