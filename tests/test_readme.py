@@ -82,3 +82,14 @@ def test_readme_quoted_spec_error_is_what_sweep_prints(tmp_path):
     done = sweep("plan", "my_study.toml", cwd=tmp_path)
     assert done.returncode == 2
     assert done.stderr.strip() == quoted.strip()
+
+
+@pytest.mark.timeout(900)
+def test_readme_quoted_summary_is_what_sweep_prints_for_the_demo(demo_run):
+    # The demo cube is deterministic, so its summary is too (produced by this code; regenerate the
+    # README's block with `sweep summary results/demo.zarr` when the model changes on purpose).
+    store, _ = demo_run
+    quoted = next(block for block in fenced("text") if block.startswith("detected_any [planets], total"))
+    done = sweep("summary", store)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.startswith(quoted + "\n")
