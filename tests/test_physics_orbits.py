@@ -152,3 +152,28 @@ def test_projected_separation_fraction_monte_carlo():
         assert abs(frac - p) < 4 * np.sqrt(p * (1 - p) / n)
     np.testing.assert_allclose(orbits.projected_separation_fraction_above([-1, 0, 1, 2]),
                                [1, 1, 0, 0])
+
+
+def test_kepler_solution_of_an_element_does_not_depend_on_its_neighbours():
+    rng = np.random.default_rng(11)
+    m, e = rng.uniform(-20.0, 20.0, 5000), rng.beta(0.867, 3.03, 5000)
+    e[::97] = 0.97  # slow to converge: in one call with the others, they must not change the others
+    together = orbits.eccentric_anomaly(m, e)
+    alone = np.array([orbits.eccentric_anomaly(a, b) for a, b in zip(m, e)])
+    in_pieces = np.concatenate([orbits.eccentric_anomaly(m[i:i + 7], e[i:i + 7]) for i in range(0, 5000, 7)])
+    assert np.array_equal(together, alone) and np.array_equal(together, in_pieces)
+    # Kepler's equation E - e sin E = M holds (Murray & Dermott 1999, eq. 2.52; from memory)
+    assert np.abs(together - e * np.sin(together) - m).max() < 1e-11
+
+
+def test_sky_geometry_with_given_cos_and_sin_of_the_inclination():
+    rng = np.random.default_rng(12)
+    n = 2000
+    a, e, omega, m = rng.uniform(0.1, 5, n), rng.uniform(0, 0.9, n), rng.uniform(0, 6.3, n), rng.uniform(0, 6.3, n)
+    cos_i = 1.0 - 2.0 * rng.random(n)
+    inc = np.arccos(cos_i)
+    plain = orbits.sky_geometry(a, e, inc, omega, m)
+    given = orbits.sky_geometry(a, e, inc, omega, m, cos_inclination=cos_i,
+                                sin_inclination=np.sqrt((1 - cos_i) * (1 + cos_i)))
+    for x, y in zip(plain, given):  # the same geometry up to the rounding of cos(arccos c) (common practice)
+        np.testing.assert_allclose(x, y, rtol=1e-9, atol=1e-12)

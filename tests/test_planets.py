@@ -355,3 +355,23 @@ def test_log1p_matches_numpy():
     y = np.concatenate([np.linspace(-0.999, 20.0, 20001), np.geomspace(1e-25, 1e-2, 500),
                         -np.geomspace(1e-25, 1e-2, 500), [0.0]])
     np.testing.assert_allclose(planets._log1p(y.copy()), np.log1p(y), rtol=2e-15, atol=0)
+
+
+def test_cell_choice_by_table_equals_numpy_searchsorted():
+    section = occurrence.PowerLawSection(kind="power-law", radius_rearth=(0.5, 16.0), cells_per_efold=2, pieces=[
+        {"radius_max_rearth": 2.0, "gamma": 0.4, "alpha": -0.2, "beta": 0.3},
+        {"radius_max_rearth": 4.0, "gamma": 0.0, "alpha": 0.0, "beta": 0.0},
+        {"gamma": 0.7, "alpha": -1.2, "beta": 0.6}], classes={"F": {"scale": 0.0}})
+    occ = occurrence.build_power_law(section)
+    n = 400
+    stars = StarTable(name=np.array([f"s{i}" for i in range(n)]), distance_pc=np.full(n, 10.0),
+                      teff_K=np.full(n, 5772.0), radius_rsun=np.ones(n), mass_msun=np.ones(n),
+                      luminosity_lsun=np.ones(n), spectral_class=(np.arange(n) % 3 + 1).astype(np.int8),
+                      ecliptic_latitude_deg=np.full(n, np.nan))
+    layout = planets._Layout(stars, occ)
+    rng = np.random.default_rng(13)
+    star = rng.integers(0, n, 200000)
+    u = np.concatenate([rng.random(199980), 1.0 - np.finfo(float).eps * np.arange(1, 11), np.zeros(10)])
+    target = layout.star_start[star] + u * layout.star_total[star]
+    slow = np.minimum(np.searchsorted(layout.cumulative, target, side="right"), layout.star_last[star])  # numpy
+    assert np.array_equal(planets.choose_cells(layout, star, u), slow)
