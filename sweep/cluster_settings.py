@@ -114,7 +114,8 @@ class ClusterOptions:
         return cls(**values)
 
 
-def _positive_int(text: str) -> int:
+def positive_int(text: str) -> int:
+    """argparse type: a whole number >= 1 (``--jobs``, ``--cores``, ``sweep run --workers``)."""
     try:
         value = int(text)
     except ValueError:
@@ -168,9 +169,9 @@ def add_cluster_arguments(parser: argparse.ArgumentParser) -> argparse._Argument
     )
     group.add_argument("--cluster", choices=tuple(KINDS), default=None, metavar="KIND",
                        help="batch system that runs the workers: " + ", ".join(KINDS))
-    group.add_argument("--jobs", type=_positive_int, default=None, metavar="N",
+    group.add_argument("--jobs", type=positive_int, default=None, metavar="N",
                        help="worker jobs to keep running (default: sweep.cluster.jobs, 2)")
-    group.add_argument("--cores", type=_positive_int, default=None, metavar="C",
+    group.add_argument("--cores", type=positive_int, default=None, metavar="C",
                        help="cores per job (default: jobqueue.<kind>.cores, 1)")
     group.add_argument("--memory", type=_memory, default=None, metavar="M",
                        help="memory per job, e.g. 4GiB (default: jobqueue.<kind>.memory, 4GiB)")

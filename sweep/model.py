@@ -15,7 +15,7 @@ import numpy as np
 from sweep import params
 from sweep.blocks import OutputVariable, RowBlock
 from sweep.catalogs import load_stars
-from sweep.concepts import build_concept, call_detect
+from sweep.concepts import build_concept
 from sweep.errors import UserInputError
 from sweep.occurrence import build_occurrence
 from sweep.planets import draw_planets
@@ -73,8 +73,9 @@ class PlanetYieldModel:
         planets = draw_planets(block, self.stars, self.occurrence, priors)
         detections = [
             [
-                call_detect(concept, planets, self.stars,
-                            params.resolve(section, f"concepts.{concept.name}", _values(block, point)), block)
+                concept.detect(planets, self.stars,
+                               params.resolve(section, f"concepts.{concept.name}", _values(block, point)),
+                               block=block)
                 for concept, section in zip(self.concepts, self.concept_sections)
             ]
             for point in self.grid_points()

@@ -23,10 +23,11 @@ What a plug-in provides (see :mod:`sweep.concepts`):
   (it has ``name``, ``kind`` and ``bands`` and forbids unknown keys). Type every number as
   :data:`sweep.params.PositiveParam` (or ``Param``, ``FractionParam``...) so that users can fix,
   grid or vary it; put the unit in the key name (``_m``, ``_um``, ``_lod``, ``_uJy``).
-- ``detect(planets, stars, params)``: a boolean array of shape ``(n_bands, n_planets)``.
-  ``params`` is the section after resolution: every number is a float or an array with one
-  value per row of the block; :func:`sweep.concepts.per_planet` turns either into a per-planet
-  value. Vectorise: no Python loops over planets or stars.
+- ``detect(planets, stars, params, block=None)``: a boolean array of shape
+  ``(n_bands, n_planets)``. ``params`` is the section after resolution: every number is a float
+  or an array with one value per row of the block; :func:`sweep.concepts.per_planet` turns either
+  into a per-planet value. ``block`` is the row block (its rows key any per-star random draw;
+  ignore it if there is none). Vectorise: no Python loops over planets or stars.
 - Subclassing :class:`sweep.concepts.Concept` gives ``name``, ``band_names`` and
   ``band_wavelengths_um``.
 
@@ -69,7 +70,7 @@ class ThermalImager(Concept):
 
     Schema = ThermalImagerSchema
 
-    def detect(self, planets, stars, params) -> np.ndarray:
+    def detect(self, planets, stars, params, block=None) -> np.ndarray:
         row, star = planets.row, planets.star
         distance_m = np.asarray(stars.distance_pc, np.float64)[star] * PC_M
         theta = planets.separation_au * AU_M / distance_m  # [rad]

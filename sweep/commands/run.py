@@ -2,23 +2,13 @@
 
 from __future__ import annotations
 
-import argparse
 import json
 from pathlib import Path
 
 from sweep.cluster import add_cluster_arguments, batch_client
+from sweep.cluster_settings import positive_int
 from sweep.commands._args import add_spec_argument
 from sweep.errors import UserInputError
-
-
-def _positive(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        value = 0
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"must be a whole number >= 1, got {text!r}")
-    return value
 
 
 def add_parser(subparsers) -> None:
@@ -33,7 +23,7 @@ def add_parser(subparsers) -> None:
     )
     add_spec_argument(parser)
     parser.add_argument("--output", metavar="STORE", help="store path (default: run.output, else results/<name>.zarr)")
-    parser.add_argument("--workers", type=_positive, metavar="N",
+    parser.add_argument("--workers", type=positive_int, metavar="N",
                         help="local worker processes (default: execution.workers, 0 there = one per core)")
     parser.add_argument("--scheduler", metavar="ADDRESS",
                         help="join a running dask scheduler (tcp://host:port) instead of starting a local cluster")

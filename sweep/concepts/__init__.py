@@ -8,9 +8,9 @@ A concept turns the planets of a block into detection masks, one per band::
 ``resolved_section`` is the concept's validated section after :func:`sweep.params.resolve`: every
 numeric field is a float (fixed, or the current grid point) or an array of shape ``(n_rows,)``
 (an uncertain factor, one value per row of the block); index such arrays by ``planets.row``.
-Concepts that draw per-star properties (the exozodi level of ``detection = "snr"``) also take the
-block, ``detect(planets, stars, resolved_section, block=block)``; :func:`call_detect` passes it to
-the concepts that accept it.
+The model also passes the block, ``detect(planets, stars, resolved_section, block=block)``: its rows
+key per-star draws (the exozodi level of ``detection = "snr"``); concepts that draw nothing per
+star ignore it.
 
 Two detection models, chosen per concept by ``detection``: ``"threshold"`` (the default: a flux
 limit per band) and ``"snr"`` (a photon-noise budget in the concept's ``noise`` table,
@@ -41,10 +41,8 @@ worker (a shared file system), a module importable there (same environment and `
 
 from __future__ import annotations
 
-import functools
 import importlib
 import importlib.abc
-import inspect
 import importlib.util
 import re
 import sys
@@ -72,7 +70,6 @@ __all__ = [
     "angular_window",
     "build_concept",
     "cache_key",
-    "call_detect",
     "concept_schema",
     "is_scalar",
     "kinds",
@@ -475,24 +472,6 @@ def parse_concept(raw: dict, where: str, base_dir: Path | str | None = None) -> 
     except ValidationError as exc:
         file, _, prefix = where.rpartition(": ")
         raise UserInputError(validation_message(exc, raw, prefix, file or "sweep definition", schema)) from None
-
-
-@functools.lru_cache(maxsize=None)
-def _takes_block(cls: type) -> bool:
-    try:
-        signature = inspect.signature(cls.detect)
-    except (TypeError, ValueError):
-        return False
-    return any(p.name == "block" or p.kind is inspect.Parameter.VAR_KEYWORD
-               for p in signature.parameters.values())
-
-
-def call_detect(concept, planets, stars, params, block=None) -> np.ndarray:
-    """``concept.detect(planets, stars, params, block=block)``, or without ``block`` for concepts
-    (plug-ins written before it existed) whose ``detect`` does not take it."""
-    if block is not None and _takes_block(type(concept)):
-        return concept.detect(planets, stars, params, block=block)
-    return concept.detect(planets, stars, params)
 
 
 def build_concept(section: BaseModel) -> Concept:
