@@ -61,7 +61,7 @@ if str(ROOT) not in sys.path:
 from benchmarks import reference as ref  # noqa: E402
 from sweep import params, planets, streams  # noqa: E402
 from sweep.design import build_rows  # noqa: E402
-from sweep.model import _values  # noqa: E402
+from sweep.model import parameter_values  # noqa: E402
 from sweep.spec import load_spec, parse_spec  # noqa: E402
 
 DEMO = ROOT / "workflows" / "demo.toml"
@@ -114,7 +114,7 @@ def consumed_numbers(block, stars, occurrence) -> tuple[int, np.ndarray]:
 
 def bench_draw(model, blocks, repeats: int) -> dict:
     """Draw time per planet and its ratio to numpy's time for the same random numbers."""
-    resolved = [params.resolve(model.priors, "priors", _values(b, {})) for b in blocks]
+    resolved = [params.resolve(model.priors, "priors", parameter_values(b, {})) for b in blocks]
     counted = [consumed_numbers(b, model.stars, model.occurrence) for b in blocks]
     n_planets = sum(len(planets.draw_planets(b, model.stars, model.occurrence, p)) for b, p in zip(blocks, resolved))
     n_uniforms = sum(c[0] for c in counted)
@@ -149,7 +149,7 @@ def bench_draw(model, blocks, repeats: int) -> dict:
 def bench_detect(model, block, repeats: int) -> dict:
     """Detection time per planet, band and grid point, as ``model.evaluate`` calls it."""
     batch = planets.draw_planets(block, model.stars, model.occurrence,
-                                 params.resolve(model.priors, "priors", _values(block, {})))
+                                 params.resolve(model.priors, "priors", parameter_values(block, {})))
     points = list(model.grid_points())
 
     def detect():
@@ -157,7 +157,7 @@ def bench_detect(model, block, repeats: int) -> dict:
         for point in points:
             for concept, section in zip(model.concepts, model.concept_sections):
                 concept.detect(fresh, model.stars,
-                               params.resolve(section, f"concepts.{concept.name}", _values(block, point)))
+                               params.resolve(section, f"concepts.{concept.name}", parameter_values(block, point)))
 
     seconds = best_of(detect, repeats)
     n_channels = model.tally.n_channels

@@ -69,12 +69,12 @@ class PlanetYieldModel:
 
     def evaluate(self, block: RowBlock) -> dict[str, np.ndarray]:
         """Draw the block's planets, observe them at every grid point, and count them."""
-        priors = params.resolve(self.priors, "priors", _values(block, {}))
+        priors = params.resolve(self.priors, "priors", parameter_values(block, {}))
         planets = draw_planets(block, self.stars, self.occurrence, priors)
         detections = [
             [
                 concept.detect(planets, self.stars,
-                               params.resolve(section, f"concepts.{concept.name}", _values(block, point)),
+                               params.resolve(section, f"concepts.{concept.name}", parameter_values(block, point)),
                                block=block)
                 for concept, section in zip(self.concepts, self.concept_sections)
             ]
@@ -102,7 +102,7 @@ class PlanetYieldModel:
         return times
 
 
-def _values(block: RowBlock, grid_point: dict):
+def parameter_values(block: RowBlock, grid_point: dict):
     """The value source for :func:`sweep.params.resolve`: factors from the block, grid values from the point."""
 
     def value_of(path, param):
