@@ -29,17 +29,20 @@ from 1) and the column. :func:`synthetic_neighbourhood` invents star lists for d
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Literal
+from typing import TYPE_CHECKING, Literal
 
+# astropy.table and astropy.io are imported where used (reading and making tables, on the client):
+# worker processes import this module and never need them.
 import astropy.units as u
 import numpy as np
-from astropy.io.registry import IORegistryError
-from astropy.table import Table
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 from sweep.errors import UserInputError
 from sweep.physics import stars as stellar
 from sweep.structs import SPECTRAL_CLASSES, StarTable
+
+if TYPE_CHECKING:
+    from astropy.table import Table
 
 #: Numeric columns: (canonical name, unit, required, bare alias usable when the table gives a unit).
 STAR_COLUMNS = (
@@ -116,6 +119,9 @@ def load_stars(section: StarsSection, base_dir: Path) -> StarTable:
 
 def read_table(path: Path, what: str) -> Table:
     """Read a table with astropy (format from the extension or the content); one-line errors."""
+    from astropy.io.registry import IORegistryError
+    from astropy.table import Table
+
     path = Path(path)
     if not path.is_file():
         raise UserInputError(f"{path}: {what} not found (expected an ECSV, CSV, FITS or VOTable file)")
@@ -337,6 +343,8 @@ def synthetic_neighbourhood(n: int, radius_pc: float, seed: int, proportions: di
         ``mass_msun`` [M_sun], ``luminosity_lsun`` [L_sun], ``spectral_class``,
         ``ecliptic_latitude_deg`` [deg], with units.
     """
+    from astropy.table import Table
+
     proportions = dict(DEFAULT_PROPORTIONS if proportions is None else proportions)
     share = np.array([float(proportions.get(c, 0.0)) for c in SPECTRAL_CLASSES])
     if share.sum() <= 0 or (share < 0).any():

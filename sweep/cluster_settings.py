@@ -22,6 +22,7 @@ import dask
 import dask.config
 import yaml
 
+from sweep.engine import WORKER_ENVIRONMENT
 from sweep.errors import UserInputError
 
 __all__ = [
@@ -401,6 +402,8 @@ def cluster_kwargs(options: ClusterOptions, security=None) -> dict:
     if walltime and "--lifetime" not in extra_args:
         extra_args += lifetime_arguments(walltime_seconds(walltime, kind))
     kwargs["worker_extra_args"] = extra_args
+    prologue = list(dask.config.get(f"{section}.job-script-prologue", None) or [])
+    kwargs["job_script_prologue"] = prologue + [f"export {key}={value}" for key, value in WORKER_ENVIRONMENT.items()]
 
     scheduler_options = dict(dask.config.get(f"{section}.scheduler-options", None) or {})
     if options.dashboard_address is not None:

@@ -50,9 +50,10 @@ from importlib.resources import files
 from pathlib import Path
 from typing import Annotated, Literal, Union
 
+# scipy.stats is imported where used (the factors' priors, built on the client): worker processes
+# import this module and never need it.
 import astropy.units as u
 import numpy as np
-import scipy.stats
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 from scipy.special import ndtri
 
@@ -234,6 +235,8 @@ class OccurrenceModel:
 
     def factors(self) -> list[params.Factor]:
         """The model's implicit factors: rate quantiles with a ``uniform(0, 1)`` prior."""
+        import scipy.stats
+
         group = FACTOR_PREFIX if self.uncertainty == "independent" else None
         return [params.Factor(name, scipy.stats.uniform(0.0, 1.0), group, "1") for name in self.factor_names()]
 

@@ -19,8 +19,9 @@ import math
 from dataclasses import dataclass
 from typing import Annotated, Any, Callable, Iterator, Union
 
+# scipy.stats is imported where used (validation, frozen priors): worker processes import this
+# module and never need it.
 import numpy as np
-import scipy.stats
 from pydantic import (
     AfterValidator,
     BaseModel,
@@ -109,6 +110,8 @@ class Uncertain(BaseModel):
 
     @model_validator(mode="after")
     def _scipy_accepts(self):
+        import scipy.stats
+
         family = getattr(scipy.stats, self.dist, None)
         if not isinstance(family, scipy.stats.rv_continuous):
             raise ValueError(
@@ -132,6 +135,8 @@ class Uncertain(BaseModel):
 
     def frozen(self):
         """The frozen ``scipy.stats`` distribution of this factor."""
+        import scipy.stats
+
         return getattr(scipy.stats, self.dist)(**self.args)
 
     def bounds(self) -> tuple[float, float]:

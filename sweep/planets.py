@@ -41,8 +41,9 @@ import itertools
 import math
 from typing import Literal
 
+# scipy.stats is imported where used (validation, non-uniform priors): worker processes import
+# this module and may never need it.
 import numpy as np
-import scipy.stats
 from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, model_validator
 
 from sweep import params, streams
@@ -78,6 +79,8 @@ class Prior(BaseModel):
 
     @model_validator(mode="after")
     def _arguments_are_params(self):
+        import scipy.stats
+
         family = getattr(scipy.stats, self.dist, None)
         if not isinstance(family, scipy.stats.rv_continuous):
             raise ValueError(f"dist = {self.dist!r} is not a continuous distribution of scipy.stats "
@@ -112,6 +115,8 @@ class Prior(BaseModel):
         Checks that ``scipy.stats`` accepts the arguments at each corner of the hyperparameters'
         ranges (bounds of grids and distributions; the 1e-9 quantiles of unbounded ones).
         """
+        import scipy.stats
+
         family = getattr(scipy.stats, self.dist)
         low, high = np.inf, -np.inf
         for arguments in self._corners():
@@ -144,6 +149,8 @@ class Prior(BaseModel):
             out = np.multiply(quantile, arguments.get("scale", 1.0))
             out += arguments.get("loc", 0.0)
             return out
+        import scipy.stats
+
         return getattr(scipy.stats, self.dist).ppf(quantile, **arguments)
 
 

@@ -307,6 +307,19 @@ def load_spec(path) -> Spec:
     return parse_spec(text, path)
 
 
+def read_execution(path) -> ExecutionSection | None:
+    """The ``[execution]`` section of a sweep definition alone, or None if it cannot be read.
+
+    Cheap (TOML and one small schema), so that ``sweep run`` can start its workers while
+    :func:`load_spec` validates the whole file; any mistake is left for :func:`load_spec` to report.
+    """
+    try:
+        document = tomllib.loads(Path(path).read_text(encoding="utf-8"))
+        return ExecutionSection.model_validate(document.get("execution", {}))
+    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError, ValidationError, AttributeError):
+        return None
+
+
 def parse_spec(text: str, path: Path) -> Spec:
     """Validate the text of a sweep definition that lives (or would live) at ``path``.
 

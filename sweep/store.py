@@ -22,6 +22,7 @@ This is the only module that imports zarr.
 
 from __future__ import annotations
 
+import asyncio
 import contextlib
 import datetime as _dt
 import hashlib
@@ -37,6 +38,9 @@ from sweep.runlock import LOCK, RunLock, write_atomic
 
 COMPLETION = "completion.jsonl"
 RUNS = "runs.jsonl"
+
+#: zarr arrays open for writing in this process, by (store path, spec hash).
+_WRITABLE_ARRAYS: dict[tuple[str, str], dict] = {}
 
 
 def now_iso() -> str:
@@ -114,12 +118,10 @@ class CubeStore:
         self.variables = [(str(name), str(dtype), tuple(int(n) for n in shape)) for name, dtype, shape in variables]
         self.spec_hash = spec_hash
         self._lock = lock
-        self._writable_group = None
 
     def __getstate__(self):
         state = dict(self.__dict__)
         state["_lock"] = None
-        state["_writable_group"] = None  # each process opens the store itself
         return state
 
     def __enter__(self):
@@ -166,12 +168,19 @@ class CubeStore:
                     f"the cube expects {(stop - start, *shape)}"
                 )
             values.append(np.ascontiguousarray(array, dtype=dtype))
-        if self._writable_group is None:
-            self._writable_group = self._group("r+")
-        group = self._writable_group
-        for (name, _, _), array in zip(self.variables, values):
-            group[name][start:stop] = array
+        _write_chunks(self._writable_arrays(), start, stop, values)
         return block_checksum(values)
+
+    def _writable_arrays(self) -> dict:
+        """The zarr arrays of the variables, opened once per process (tasks unpickle their own
+        CubeStore, so the cache is the module's). The spec hash in the key fixes the variables,
+        shapes and chunks, so a store allocated again from the same spec is written correctly."""
+        key = (self.path, self.spec_hash)
+        arrays = _WRITABLE_ARRAYS.get(key)
+        if arrays is None:
+            group = self._group("r+")
+            arrays = _WRITABLE_ARRAYS[key] = {name: group[name] for name, _, _ in self.variables}  # checksum order
+        return arrays
 
     def _group(self, mode: str):
         import zarr
@@ -207,6 +216,19 @@ def _done_blocks(path: Path, n_blocks: int) -> dict[int, str]:
         if isinstance(block, int) and 0 <= block < n_blocks and isinstance(checksum, str):
             done[block] = checksum
     return done
+
+
+def _write_chunks(targets: dict, start: int, stop: int, values: list) -> None:
+    """Write ``values`` into rows ``start:stop`` of the arrays of ``targets`` (same order), all at
+    once on zarr's event loop: encoding and file writes overlap (a third faster than one after
+    the other for the demo's seven variables)."""
+    from zarr.core.sync import sync
+
+    async def write_all():
+        await asyncio.gather(*(array.async_array.setitem(slice(start, stop), value)
+                               for array, value in zip(targets.values(), values)))
+
+    sync(write_all())
 
 
 # --------------------------------------------------------------------------------- allocation
@@ -301,46 +323,56 @@ def _dataset_attrs(spec, rows, model) -> dict:
 
 
 def _allocate(path: Path, spec, rows, model) -> None:
-    """Write the metadata, row coordinates and empty variables of a new cube (no variable chunks)."""
-    import dask.array as da
-    import xarray as xr
+    """Write the metadata, row coordinates and empty variables of a new cube (no variable chunks).
+
+    The layout is the one xarray reads as a dataset (``dimension_names`` on every array, the row
+    coordinates named in each variable's ``coordinates`` attribute), written with zarr alone: the
+    client of ``sweep run`` then never imports xarray, pandas or dask.array before its first task.
+    """
+    import zarr
 
     block_rows = int(spec.run.block_rows)
     n_rows = int(rows.n_rows)
-    coords = {}
-    for dim, (values, attrs) in model.coords().items():
-        values = np.asarray(values)
-        if values.dtype.kind in "US":
-            values = values.astype(object)
-        coords[dim] = xr.Variable((dim,), values, dict(attrs or {}))
-    coords["block"] = xr.Variable(
-        ("row",), np.asarray(rows.block_label).astype(object),
-        {"description": "design block of the row: MC, A, B or AB:<input>"},
-    )
-    coords["base_index"] = xr.Variable(
-        ("row",), np.asarray(rows.base_index, dtype=np.int64),
-        {"description": "position of the row within its design block", "units": "1"},
-    )
+    row_coords = {
+        "block": (np.asarray(rows.block_label).astype(str),
+                  {"description": "design block of the row: MC, A, B or AB:<input>"}),
+        "base_index": (np.asarray(rows.base_index, dtype=np.int64),
+                       {"description": "position of the row within its design block", "units": "1"}),
+    }
     for factor in spec.factors():
-        coords[factor.name] = xr.Variable(
-            ("row",), np.asarray(rows.factor_values[factor.name], dtype=np.float64),
+        row_coords[factor.name] = (
+            np.asarray(rows.factor_values[factor.name], dtype=np.float64),
             {"units": factor.unit, "description": f"value of the uncertain factor {factor.name}"},
         )
-    data_vars, encoding = {}, {}
     model_coords = model.coords()
-    for output in model.outputs():
-        shape = (n_rows, *(len(model_coords[dim][0]) for dim in output.dims))
-        chunks = (block_rows, *shape[1:])
-        dtype = np.dtype(output.dtype)
-        data_vars[output.name] = xr.Variable(
-            ("row", *output.dims), da.zeros(shape, dtype=dtype, chunks=chunks),
-            {"units": output.units, "description": output.description},
-        )
-        fill = np.nan if dtype.kind == "f" else 0
-        encoding[output.name] = {"chunks": chunks, "fill_value": fill}
-    dataset = xr.Dataset(data_vars, coords=coords, attrs=_dataset_attrs(spec, rows, model))
     with _quiet_zarr():
-        dataset.to_zarr(path, mode="a", compute=False, zarr_format=3, consolidated=True, encoding=encoding)
+        group = zarr.open_group(path, mode="a", zarr_format=3, attributes=_dataset_attrs(spec, rows, model))
+        for dim, (values, attrs) in model_coords.items():
+            _write_coordinate(group, dim, (dim,), np.asarray(values), dict(attrs or {}))
+        for name, (values, attrs) in row_coords.items():
+            _write_coordinate(group, name, ("row",), values, attrs)
+        coordinate_names = " ".join(sorted(row_coords))
+        for output in model.outputs():
+            shape = (n_rows, *(len(model_coords[dim][0]) for dim in output.dims))
+            dtype = np.dtype(output.dtype)
+            group.create_array(
+                output.name, shape=shape, dtype=dtype, chunks=(block_rows, *shape[1:]),
+                fill_value=np.nan if dtype.kind == "f" else 0, dimension_names=("row", *output.dims),
+                attributes={"units": output.units, "description": output.description,
+                            "coordinates": coordinate_names},
+            )
+        zarr.consolidate_metadata(path)
+
+
+def _write_coordinate(group, name: str, dims: tuple, values: np.ndarray, attrs: dict) -> None:
+    """One coordinate array, whole in one chunk; text as zarr's variable-length strings."""
+    text = values.dtype.kind in "USOT"
+    array = group.create_array(
+        name, shape=values.shape, dtype=str if text else values.dtype, chunks=values.shape or None,
+        fill_value="" if text else (np.nan if values.dtype.kind == "f" else 0),
+        dimension_names=dims, attributes=attrs,
+    )
+    array[...] = values.astype(str) if text else values
 
 
 def _stored_variables(path: Path) -> dict | None:

@@ -24,6 +24,7 @@ import pytest
 import xarray as xr
 
 from sweep import cluster
+from sweep.engine import WORKER_ENVIRONMENT
 from sweep.errors import UserInputError
 
 from conftest import ISHIGAMI_MODEL
@@ -153,6 +154,16 @@ def test_other_batch_systems_get_walltime_and_tls(kind, expected, tmp_path):
     walltime = "01:00" if kind == "lsf" else "01:00:00"
     script, _ = _job_script(kind, cluster.ClusterOptions(kind, walltime=walltime), tmp_path)
     assert expected in script and "--lifetime" in script and "tls://" in script
+
+
+def test_job_script_exports_worker_malloc_settings_after_the_users_prologue(tmp_path):
+    # The nanny keeps an environment variable that is already set (distributed's
+    # _get_env_variables), so the exports replace its MALLOC_TRIM_THRESHOLD_=65536.
+    script, _ = _job_script("slurm", cluster.ClusterOptions("slurm"), tmp_path,
+                            **{"jobqueue.slurm.job-script-prologue": ["module load python"]})
+    exports = [f"export {key}={value}" for key, value in WORKER_ENVIRONMENT.items()]
+    positions = [script.index(line) for line in ["module load python", *exports]]
+    assert positions == sorted(positions) and positions[-1] < script.index("distributed.cli.dask_worker")
 
 
 def test_user_dask_config_wins_over_packaged_defaults():

@@ -114,7 +114,7 @@ def test_fixed_rates_and_detect_everything_give_a_poisson_yield(tmp_path):
 
 def _small_planet_spec(tmp_path, name, block_rows):
     text = (WORKFLOWS / "demo.toml").read_text()
-    text = text.replace("base_rows = 512", "base_rows = 32").replace("block_rows = 128", f"block_rows = {block_rows}")
+    text = text.replace("base_rows = 2048", "base_rows = 32").replace("block_rows = 512", f"block_rows = {block_rows}")
     text = text.replace('file = "stars_demo.ecsv"', f'file = "{(WORKFLOWS / "stars_demo.ecsv").as_posix()}"')
     path = tmp_path / f"{name}.toml"
     path.write_text(text)

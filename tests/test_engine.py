@@ -11,7 +11,7 @@ import pytest
 import sweep
 from sweep import store
 from sweep.design import build_rows
-from sweep.engine import RunError, open_client, run_sweep
+from sweep.engine import WORKER_ENVIRONMENT, RunError, open_client, run_sweep
 from sweep.spec import load_spec
 
 from conftest import ExternalCluster
@@ -39,6 +39,14 @@ def client():
     """A local cluster of two worker processes, as ``sweep run`` starts by default."""
     with open_client(workers=2) as client:
         yield client
+
+
+def test_local_workers_start_with_the_engines_malloc_settings(client):
+    # distributed's nanny would set MALLOC_TRIM_THRESHOLD_=65536 (its distributed.yaml)
+    import os
+
+    seen = client.run(lambda: {key: os.environ.get(key) for key in WORKER_ENVIRONMENT})
+    assert len(seen) == 2 and all(env == WORKER_ENVIRONMENT for env in seen.values())
 
 
 def test_two_workers_and_two_block_sizes_give_the_same_cube(client, tmp_path, ishigami_spec):

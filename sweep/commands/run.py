@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import json
 from pathlib import Path
 
@@ -39,8 +40,8 @@ def add_parser(subparsers) -> None:
 
 def run(args) -> int:
     """Run the sweep; print a summary; return the exit status."""
-    from sweep.engine import run_sweep
-    from sweep.spec import load_spec
+    from sweep.engine import StartingClient, run_sweep
+    from sweep.spec import load_spec, read_execution
 
     if args.scheduler and args.workers:
         raise UserInputError("--workers sets the local cluster's size; with --scheduler the scheduler's workers run the tasks")
@@ -48,13 +49,18 @@ def run(args) -> int:
         raise UserInputError("--cluster starts its own scheduler; leave out --scheduler")
     if args.cluster and args.workers:
         raise UserInputError("--workers sizes the local cluster; with --cluster use --jobs")
-    spec = load_spec(args.spec)
     if args.cluster:
+        spec = load_spec(args.spec)
         with batch_client(args) as client:
             summary = run_sweep(spec, output=args.output, client=client, fresh=args.fresh, progress=not args.quiet)
     else:
-        summary = run_sweep(spec, output=args.output, fresh=args.fresh, progress=not args.quiet,
-                            workers=args.workers, scheduler=args.scheduler)
+        execution = read_execution(args.spec)
+        with contextlib.ExitStack() as stack:  # workers start while the whole spec is validated
+            client = None if execution is None else stack.enter_context(
+                StartingClient(execution, workers=args.workers, scheduler=args.scheduler))
+            spec = load_spec(args.spec)
+            summary = run_sweep(spec, output=args.output, client=client, fresh=args.fresh, progress=not args.quiet,
+                                workers=args.workers, scheduler=args.scheduler)
     report = _write_report(summary.path) if args.report else None
     if args.json:
         print(json.dumps(summary.as_dict() | ({"report": str(report)} if report else {}), indent=2))

@@ -4,12 +4,7 @@ from __future__ import annotations
 
 import json
 
-from sweep import analysis
-from sweep.analysis.intervals import intervals
-from sweep.analysis.knowledge import knowledge_value
-from sweep.analysis.sobol import sobol
 from sweep.commands._args import add_output_selection, add_result_store_argument, selected_variables
-from sweep.report.tables import sensitivity_tables, sobol_records
 
 
 def add_parser(subparsers) -> None:
@@ -30,6 +25,12 @@ def add_parser(subparsers) -> None:
 
 
 def run(args) -> int:
+    from sweep import analysis  # the analysis and report modules load scipy.stats, xarray, matplotlib
+    from sweep.analysis.intervals import intervals
+    from sweep.analysis.knowledge import knowledge_value
+    from sweep.analysis.sobol import sobol
+    from sweep.report.tables import sensitivity_tables, sobol_records
+
     ds, rows_complete = analysis.load_cube(args.store)
     names = analysis.output_variables(ds)
     variables = selected_variables(args, names, names[:1])

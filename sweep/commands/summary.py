@@ -4,11 +4,8 @@ from __future__ import annotations
 
 import json
 
-from sweep import analysis
-from sweep.analysis.intervals import intervals
 from sweep.commands._args import add_output_selection, add_result_store_argument, selected_variables
 from sweep.errors import UserInputError
-from sweep.report.tables import interval_records, summary_tables
 
 
 def parse_levels(text: str) -> list[float]:
@@ -39,6 +36,10 @@ def add_parser(subparsers) -> None:
 
 
 def run(args) -> int:
+    from sweep import analysis  # the analysis and report modules load scipy.stats, xarray, matplotlib
+    from sweep.analysis.intervals import intervals
+    from sweep.report.tables import interval_records, summary_tables
+
     levels = parse_levels(args.levels)
     ds, rows_complete = analysis.load_cube(args.store)
     names = analysis.output_variables(ds)
