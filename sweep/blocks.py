@@ -52,6 +52,22 @@ class RowBlock:
     def __len__(self) -> int:
         return self.stop - self.start
 
+    def split(self, max_rows: int) -> list[RowBlock]:
+        """The block cut into consecutive parts of at most ``max_rows`` rows (same index and seed).
+
+        Each row keeps its base index, population source and factor values, so a model that
+        draws its random numbers per row gives the same counts for the parts as for the whole.
+        """
+        cuts = range(0, len(self), max(int(max_rows), 1))
+        if len(cuts) == 1:
+            return [self]
+        return [
+            RowBlock(self.index, self.start + first, self.start + min(first + max_rows, len(self)), self.seed,
+                     self.base_index[first:first + max_rows], self.population_source[first:first + max_rows],
+                     {name: values[first:first + max_rows] for name, values in self.factors.items()})
+            for first in cuts
+        ]
+
 
 @dataclass(frozen=True)
 class OutputVariable:

@@ -402,8 +402,9 @@ def cluster_kwargs(options: ClusterOptions, security=None) -> dict:
     if walltime and "--lifetime" not in extra_args:
         extra_args += lifetime_arguments(walltime_seconds(walltime, kind))
     kwargs["worker_extra_args"] = extra_args
-    prologue = list(dask.config.get(f"{section}.job-script-prologue", None) or [])
-    kwargs["job_script_prologue"] = prologue + [f"export {key}={value}" for key, value in WORKER_ENVIRONMENT.items()]
+    if kind in KINDS:  # a batch script (dask-jobqueue's local test kind runs its lines as commands)
+        prologue = list(dask.config.get(f"{section}.job-script-prologue", None) or [])
+        kwargs["job_script_prologue"] = prologue + [f"export {key}={value}" for key, value in WORKER_ENVIRONMENT.items()]
 
     scheduler_options = dict(dask.config.get(f"{section}.scheduler-options", None) or {})
     if options.dashboard_address is not None:

@@ -24,6 +24,13 @@ from sweep.tally import Tally
 #: Sections whose parameters shape the population: one population per row, so no grid axes there.
 POPULATION_SECTIONS = ("stars", "occurrence", "priors")
 
+#: Planets (expected, at the factors' medians) drawn and observed in one pass over part of a block.
+#: A pass then keeps its largest temporaries (the uniforms of the candidates that may be kept, 10
+#: of 8 bytes each) near 10 MB, below glibc's largest mmap threshold (32 MiB): larger arrays are
+#: fresh mappings whose pages fault in on every use, which made the draw of a 512-row demo block
+#: 35 % slower per planet than in passes of 140 rows (benchmarks/run.py, draw figures).
+PLANETS_PER_PASS = 65536
+
 
 class PlanetYieldModel:
     """Planet counts for a block of rows, for every grid point, concept, band and category.
@@ -54,6 +61,7 @@ class PlanetYieldModel:
             concept_names=[concept.name for concept in self.concepts],
             band_names=[concept.band_names for concept in self.concepts],
         )
+        self.rows_per_pass = max(1, int(PLANETS_PER_PASS // max(self.expected_planets_per_row(), 1.0)))
 
     def outputs(self) -> list[OutputVariable]:
         return self.tally.outputs()
@@ -68,7 +76,18 @@ class PlanetYieldModel:
             yield dict(zip(names, values))
 
     def evaluate(self, block: RowBlock) -> dict[str, np.ndarray]:
-        """Draw the block's planets, observe them at every grid point, and count them."""
+        """Draw the block's planets, observe them at every grid point, and count them.
+
+        The block is evaluated in passes of :attr:`rows_per_pass` rows (see
+        :data:`PLANETS_PER_PASS`); every row has its own random streams, so the counts do not
+        depend on the passes.
+        """
+        counts = [self._evaluate_rows(part) for part in block.split(self.rows_per_pass)]
+        if len(counts) == 1:
+            return counts[0]
+        return {name: np.concatenate([part[name] for part in counts]) for name in counts[0]}
+
+    def _evaluate_rows(self, block: RowBlock) -> dict[str, np.ndarray]:
         priors = params.resolve(self.priors, "priors", parameter_values(block, {}))
         planets = draw_planets(block, self.stars, self.occurrence, priors)
         detections = [

@@ -245,13 +245,35 @@ class OccurrenceModel:
         """Rates at quantiles that broadcast against ``(n_classes, n_cells)``."""
         quantile = np.asarray(quantile, float)
         z = ndtri(quantile)
-        lognormal = np.where(z < 0, self._sig_lo, self._sig_hi)
-        lognormal *= z
-        np.exp(lognormal, out=lognormal)
+        if z.ndim == 3 and z.shape[1:] == (1, 1):
+            lognormal = self._per_row_lognormal(z.reshape(-1))
+        else:
+            lognormal = np.where(z < 0, self._sig_lo, self._sig_hi)
+            lognormal *= z
+            np.exp(lognormal, out=lognormal)
         lognormal *= self._base
         if not self._upper.any():
             return lognormal
         return np.where(self._upper, self._base * quantile, lognormal)
+
+    def _per_row_lognormal(self, z):
+        """``exp(sigma z)`` with one z per row, shape ``(n_rows, n_classes, n_cells)``.
+
+        The same numbers as the general case, with ``exp`` taken once per row and distinct
+        sigma (cells share a few spreads) and then spread over the cells.
+        """
+        if getattr(self, "_spreads", None) is None:
+            values, index = np.unique(np.concatenate([self._sig_lo.ravel(), self._sig_hi.ravel()]),
+                                      return_inverse=True)
+            lo_index, hi_index = index.reshape(2, self.n_classes, self.n_cells)
+            self._spreads = (values, lo_index, hi_index)
+        values, lo_index, hi_index = self._spreads
+        per_value = np.exp(z[:, None] * values)  # (n_rows, n_values)
+        negative = z < 0
+        lognormal = np.take(per_value, hi_index, axis=1)
+        if negative.any():
+            lognormal[negative] = np.take(per_value[negative], lo_index, axis=1)
+        return lognormal
 
     def cell_quantiles(self, factor_values: dict, n_rows: int | None = None) -> np.ndarray:
         """Quantile of every cell's rate, shape ``(n_rows, n_classes, n_cells)``.

@@ -144,7 +144,7 @@ class Prior(BaseModel):
         arguments = {}
         for key, value in self.arguments().items():
             value = np.asarray(value, dtype=float)
-            arguments[key] = value[row] if value.ndim else float(value)
+            arguments[key] = np.take(value, row) if value.ndim else float(value)
         if self.dist == "uniform":  # scipy's own formula, q * scale + loc, without its argument checks
             out = np.multiply(quantile, arguments.get("scale", 1.0))
             out += arguments.get("loc", 0.0)
@@ -205,11 +205,12 @@ def _log1p(y: np.ndarray) -> np.ndarray:
     """
     w = y + 1.0
     ratio = np.subtract(w, 1.0)
-    exact = ratio == 0.0  # |y| below half an ulp of 1: ln(1 + y) = y to rounding
-    np.divide(y, ratio, out=ratio, where=~exact)
+    exact = np.flatnonzero(ratio == 0.0)  # |y| below half an ulp of 1: ln(1 + y) = y to rounding
+    ratio[exact] = 1.0
+    np.divide(y, ratio, out=ratio)
     x = np.log(w, out=w)
     x *= ratio
-    np.copyto(x, y, where=exact)
+    x[exact] = y[exact]
     return x
 
 
@@ -224,21 +225,23 @@ class _WithinCell:
         exponent, low, high = (np.asarray(v, float).ravel() for v in (exponent, low, high))
         width = high - low
         self.flat = exponent == 0.0
+        self.any_flat, self.all_flat = bool(self.flat.any()), bool(self.flat.all())
         safe = np.where(self.flat, 1.0, exponent)
         self.low = low
         self.scale = np.where(self.flat, width, np.expm1(safe * width))
         self.inverse = 1.0 / safe
 
     def __call__(self, u, cell):
-        scaled = u * self.scale[cell]
-        if not self.flat.any():  # power laws: every cell has an exponent
+        scaled = np.take(self.scale, cell)
+        scaled *= u
+        if not self.any_flat:  # power laws: every cell has an exponent
             x = _log1p(scaled)
-            x *= self.inverse[cell]
-        elif self.flat.all():  # binned tables: log-uniform in every cell
+            x *= np.take(self.inverse, cell)
+        elif self.all_flat:  # binned tables: log-uniform in every cell
             x = scaled
         else:
             x = np.where(self.flat[cell], scaled, np.log1p(scaled) * self.inverse[cell])
-        x += self.low[cell]
+        x += np.take(self.low, cell)
         return x
 
 
@@ -271,6 +274,29 @@ class _Layout:
         edges = np.arange(n_bins) / self.bins_per_unit if total > 0 else np.zeros(1)
         self.bin_first_cell = np.searchsorted(self.cumulative, edges, side="right")
         self.cumulative_ends = np.append(self.cumulative, np.inf)
+        self.positive = self.envelope > 0
+        self.ln_radius = _WithinCell(occurrence.alpha, occurrence.lnr_lo, occurrence.lnr_hi)
+        self.ln_period = _WithinCell(occurrence.beta, occurrence.lnp_lo, occurrence.lnp_hi)
+        self.star_ids = np.arange(len(stars), dtype=np.int64)
+
+
+#: Layouts of recent (star list, occurrence model) pairs, by identity: a worker draws many blocks
+#: with the same model objects. Holds the objects themselves, so that an id is never reused.
+_LAYOUTS: dict[tuple[int, int], tuple[StarTable, OccurrenceModel, _Layout]] = {}
+_LAYOUTS_KEPT = 4
+
+
+def _layout(stars: StarTable, occurrence: OccurrenceModel) -> _Layout:
+    """The :class:`_Layout` of a star list and occurrence model, made once per pair of objects."""
+    key = (id(stars), id(occurrence))
+    cached = _LAYOUTS.get(key)
+    if cached is not None and cached[0] is stars and cached[1] is occurrence:
+        return cached[2]
+    layout = _Layout(stars, occurrence)
+    while len(_LAYOUTS) >= _LAYOUTS_KEPT:  # forget the oldest
+        _LAYOUTS.pop(next(iter(_LAYOUTS), None), None)
+    _LAYOUTS[key] = (stars, occurrence, layout)
+    return layout
 
 
 def choose_cells(layout: _Layout, star: np.ndarray, u: np.ndarray) -> np.ndarray:
@@ -290,20 +316,21 @@ def choose_cells(layout: _Layout, star: np.ndarray, u: np.ndarray) -> np.ndarray
     ndarray of int
         Flat cell index (``class * n_cells + cell``); never a cell of zero envelope.
     """
-    target = layout.star_start[star] + u * layout.star_total[star]
+    target = np.take(layout.star_total, star)
+    target *= u
+    target += np.take(layout.star_start, star)  # star_start + u * star_total
     # np.searchsorted(layout.cumulative, target, side="right"), by table: start from the first
     # cell of the bin below the target's (never past the answer, whatever the rounding of the
     # bin index) and step on while the cell ends at or below the target (this also skips cells of
     # zero width). The cap only catches rounding at the class's top end.
-    bins = np.multiply(target, layout.bins_per_unit).astype(np.intp)
+    bins = np.multiply(target, layout.bins_per_unit, out=np.empty(len(target), np.intp), casting="unsafe")
     bins -= 1
-    np.clip(bins, 0, len(layout.bin_first_cell) - 1, out=bins)
-    cell = layout.bin_first_cell[bins]
-    behind = np.flatnonzero(layout.cumulative_ends[cell] <= target)
+    cell = np.take(layout.bin_first_cell, bins, mode="clip")  # bins clipped to the table
+    behind = np.flatnonzero(np.take(layout.cumulative_ends, cell) <= target)
     while len(behind):
         cell[behind] += 1
         behind = behind[layout.cumulative_ends[cell[behind]] <= target[behind]]
-    return np.minimum(cell, layout.star_last[star])
+    return np.minimum(cell, np.take(layout.star_last, star), out=cell)
 
 
 def _excess_cells(layout: _Layout, excess: np.ndarray, rng: np.random.Generator) -> np.ndarray:
@@ -341,48 +368,54 @@ def draw_planets(block: RowBlock, stars: StarTable, occurrence: OccurrenceModel,
     PlanetBatch
         One entry per planet, ordered by row, with the row (within the block) and the star index.
     """
-    layout = _Layout(stars, occurrence)
+    layout = _layout(stars, occurrence)
     n_rows, n_stars = len(block), len(stars)
     rates = occurrence.cell_rates(block.factors, n_rows).reshape(n_rows, -1)
-    excess = np.maximum(rates - layout.envelope, 0.0)
-    has_excess = (excess > 0).any(axis=1)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ratio = np.where(layout.envelope > 0, rates / layout.envelope, 0.0)
+    has_excess = (rates > layout.envelope).any(axis=1)  # rows with rates above the envelope
+    ratio = np.divide(rates, layout.envelope, out=np.zeros_like(rates), where=layout.positive)
     # a candidate whose acceptance uniform is above its row's largest ratio is rejected whatever
     # its cell: only the others are kept for the block-wide pass below (all of the kept ones, and
     # only them, when the rates move together)
-    row_max = ratio.max(axis=1, initial=0.0)
+    row_max = ratio.max(axis=1, initial=0.0).tolist()
+    # and one below its row's smallest ratio (over cells of nonzero envelope, the only cells a
+    # candidate gets) is kept whatever its cell
+    row_min = ratio.min(axis=1, initial=np.inf, where=layout.positive)
     # first pass: one generator per row, keyed by what the row is, and its Poisson draws (each
     # stream's first draw), which bound the number of planets of the block
-    generators, counts, extra = [], [], {}
-    for r in range(n_rows):
-        key = (block.seed, block.base_index[r], block.population_source[r])
-        rng = streams.row_generator(*key, streams.CANDIDATES)
-        counts.append(rng.poisson(layout.star_envelope))
-        generators.append(rng)
-        if has_excess[r]:
-            x_rng = streams.row_generator(*key, streams.EXCESS)
-            extra[r] = (x_rng, _excess_cells(layout, excess[r], x_rng))
+    generators = streams.row_generators(block.seed, block.base_index, block.population_source,
+                                        streams.CANDIDATES)
+    counts = [rng.poisson(layout.star_envelope) for rng in generators]
+    extra = {}
+    if has_excess.any():
+        excess_rows = np.flatnonzero(has_excess)
+        x_generators = streams.row_generators(block.seed, np.asarray(block.base_index)[excess_rows],
+                                              np.asarray(block.population_source)[excess_rows], streams.EXCESS)
+        for r, x_rng in zip(excess_rows.tolist(), x_generators):
+            excess = np.maximum(rates[r] - layout.envelope, 0.0)
+            extra[r] = (x_rng, _excess_cells(layout, excess, x_rng))
     counts = np.concatenate(counts + [np.zeros(0, np.int64)])  # by (row, star)
     sizes = counts.reshape(n_rows, n_stars).sum(axis=1) if n_rows and n_stars else np.zeros(n_rows, np.int64)
-    first = np.concatenate([[0], np.cumsum(sizes)]).astype(np.int64)  # first candidate of each row
+    first = np.concatenate([[0], np.cumsum(sizes)]).astype(np.int64).tolist()  # first candidate of each row
     n_extra = [len(x[1]) for x in extra.values()]
     # second pass: each row's uniforms, one (N_UNIFORMS, n) draw into a scratch buffer that stays
     # in cache; the candidates that may be kept, then the row's excess planets, are copied into
     # the columns of ``u``, in the order of the batch (by row)
     scratch = np.empty(N_UNIFORMS * max([int(sizes.max(initial=0))] + n_extra))
-    u = np.empty((N_UNIFORMS, int(first[-1]) + sum(n_extra)))
-    maybe = np.empty(int(first[-1]), bool)  # of every candidate
-    per_row = np.zeros(n_rows, np.int64)  # columns of each row
+    u = np.empty((N_UNIFORMS, first[-1] + sum(n_extra)))
+    maybe = np.empty(first[-1], bool)  # of every candidate
+    per_row = [0] * n_rows  # columns of each row
     extra_columns, extra_stars, extra_cells = [], [], []
     end = 0
     for r, rng in enumerate(generators):
-        n, row_start = int(sizes[r]), end
+        n, row_start = first[r + 1] - first[r], end
         uniforms = scratch[:N_UNIFORMS * n].reshape(N_UNIFORMS, n)
         rng.random(out=uniforms)
         row_maybe = np.less(uniforms[_ACCEPT], row_max[r], out=maybe[first[r]:first[r + 1]])
-        start, end = end, end + int(np.count_nonzero(row_maybe))
-        np.compress(row_maybe, uniforms, axis=1, out=u[:, start:end])
+        # compress, then copy: compress(out=) into the non-contiguous columns goes through a
+        # temporary anyway, and more slowly
+        kept_uniforms = uniforms.compress(row_maybe, axis=1)
+        start, end = end, end + kept_uniforms.shape[1]
+        u[:, start:end] = kept_uniforms
         if r in extra:
             x_rng, x_cells = extra[r]
             start, end = end, end + len(x_cells)
@@ -396,7 +429,7 @@ def draw_planets(block: RowBlock, stars: StarTable, occurrence: OccurrenceModel,
     u = u[:, :end]
     row = np.repeat(np.arange(n_rows, dtype=np.int64), per_row)
     # host of every candidate left: the star of its place in the block's (row, star) counts
-    star = np.compress(maybe, np.repeat(np.tile(np.arange(n_stars, dtype=np.int64), n_rows), counts))
+    star = np.repeat(np.tile(layout.star_ids, n_rows), counts).compress(maybe)
     if extra:
         extra_columns = np.concatenate(extra_columns)
         is_candidate = np.ones(end, bool)
@@ -408,26 +441,29 @@ def draw_planets(block: RowBlock, stars: StarTable, occurrence: OccurrenceModel,
     # cells and thinning of the candidates (done for every column: the excess planets' results
     # are then replaced by their own cells, and they are all kept)
     cell = choose_cells(layout, star, u[_CELL])
-    kept = u[_ACCEPT] < ratio[row, cell]
+    kept = u[_ACCEPT] < np.repeat(row_min, per_row)
+    unsure = np.flatnonzero(~kept)  # the few that need their cell's own ratio
+    kept[unsure] = u[_ACCEPT, unsure] < ratio[row[unsure], cell[unsure]]
     if extra:
         cell[extra_columns] = np.concatenate(extra_cells)
         kept[extra_columns] = True
     u = u[_PROPERTIES]
     if not kept.all():
-        row, star, cell, u = row[kept], star[kept], cell[kept], u[:, kept]
-    return _properties(row, star, cell, u, stars, occurrence, priors_resolved)
+        row, star, cell, u = row.compress(kept), star.compress(kept), cell.compress(kept), u.compress(kept, axis=1)
+    return _properties(row, star, cell, u, stars, layout, priors_resolved)
 
 
-def _properties(row, star, cell, u, stars: StarTable, occurrence: OccurrenceModel,
-                priors: PriorsSection) -> PlanetBatch:
+def _properties(row, star, cell, u, stars: StarTable, layout: _Layout, priors: PriorsSection) -> PlanetBatch:
     """All planet properties from the uniforms (the rows :data:`_PROPERTIES`) and the physics module."""
     u_lnr, u_lnp, u_cosi, u_mean_anomaly, u_periapsis, u_bond, u_geometric, u_ecc = u
-    lnr = _WithinCell(occurrence.alpha, occurrence.lnr_lo, occurrence.lnr_hi)(u_lnr, cell)
-    lnp = _WithinCell(occurrence.beta, occurrence.lnp_lo, occurrence.lnp_hi)(u_lnp, cell)
+    lnr = layout.ln_radius(u_lnr, cell)
+    lnp = layout.ln_period(u_lnp, cell)
     radius, period = np.exp(lnr), np.exp(lnp, out=lnp)
     cos_i = np.multiply(u_cosi, -2.0)
     cos_i += 1.0
-    sin_i = np.sqrt((1.0 - cos_i) * (1.0 + cos_i))  # sin(arccos c) >= 0, accurate near c = +-1
+    sin_i = np.subtract(1.0, cos_i)  # sin(arccos c) = sqrt((1 - c) (1 + c)) >= 0, accurate near c = +-1
+    sin_i *= 1.0 + cos_i
+    np.sqrt(sin_i, out=sin_i)
     inclination = np.arccos(cos_i)
     mean_anomaly = _TWO_PI * u_mean_anomaly
     periapsis = _TWO_PI * u_periapsis
@@ -438,12 +474,12 @@ def _properties(row, star, cell, u, stars: StarTable, occurrence: OccurrenceMode
         geometric = radiation.geometric_albedo_lambert(bond)
     circular = priors.eccentricity is None
     eccentricity = np.zeros(len(row)) if circular else priors.eccentricity.ppf(u_ecc, row)
-    star_mass = stars.mass_msun[star]
+    star_mass = np.take(stars.mass_msun, star)
     mass = masses.chen_kipping2017_mass_mearth(radius, ln_radius=lnr)
     sma = orbits.semi_major_axis_au(period, star_mass, mass)
     separation, distance, phase = orbits.sky_geometry(sma, eccentricity, inclination, periapsis, mean_anomaly,
                                                        cos_inclination=cos_i, sin_inclination=sin_i)
-    insolation = habitability.insolation_searth(stars.luminosity_lsun[star], sma)
+    insolation = habitability.insolation_searth(np.take(stars.luminosity_lsun, star), sma)
     if circular:  # the factors below are exactly 1
         teq_distance = sma
     else:
@@ -452,7 +488,8 @@ def _properties(row, star, cell, u, stars: StarTable, occurrence: OccurrenceMode
         flux_factor = np.sqrt(1.0 - eccentricity * eccentricity)
         insolation = insolation / flux_factor
         teq_distance = sma * np.sqrt(flux_factor)
-    teq = radiation.equilibrium_temperature_K(stars.teff_K[star], stars.radius_rsun[star], teq_distance, bond,
+    teq = radiation.equilibrium_temperature_K(np.take(stars.teff_K, star), np.take(stars.radius_rsun, star),
+                                              teq_distance, bond,
                                               priors.redistribution)
     rv = masses.rv_semi_amplitude_from_orbit_ms(mass, star_mass, period, sma, sin_i, eccentricity)
     return PlanetBatch(

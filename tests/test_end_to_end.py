@@ -15,6 +15,7 @@ from scipy import stats
 from sweep.analysis import load_cube
 from sweep.analysis.intervals import intervals
 from sweep.analysis.sobol import sobol
+from sweep.design import build_rows
 from sweep.engine import run_sweep
 from sweep.spec import load_spec
 
@@ -119,6 +120,22 @@ def _small_planet_spec(tmp_path, name, block_rows):
     path = tmp_path / f"{name}.toml"
     path.write_text(text)
     return load_spec(path)
+
+
+@pytest.mark.parametrize("workflow", ["demo.toml", "noise_budget.toml"])
+def test_counts_do_not_depend_on_the_passes_a_block_is_evaluated_in(workflow):
+    # DESIGN.md, "Rows, seeds and common random numbers": every row has its own random streams
+    spec = load_spec(WORKFLOWS / workflow)
+    model = spec.build_model()
+    block = build_rows(spec).block(1, 24)
+    assert model.rows_per_pass >= 24  # one pass
+    whole = model.evaluate(block)
+    model.rows_per_pass = 5
+    assert [len(part) for part in block.split(5)] == [5, 5, 5, 5, 4]
+    in_passes = model.evaluate(block)
+    assert sorted(in_passes) == sorted(whole)
+    for name, values in whole.items():
+        np.testing.assert_array_equal(in_passes[name], values)  # bit for bit
 
 
 def test_planet_cube_is_bit_identical_for_worker_counts_and_block_sizes(tmp_path):

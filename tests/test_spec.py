@@ -8,7 +8,7 @@ import pytest
 
 from sweep import params
 from sweep.errors import UserInputError
-from sweep.spec import Spec, load_spec, parse_spec
+from sweep.spec import Spec, load_spec, parse_spec, read_execution
 from sweep.testfunctions import IshigamiModel, SobolGModel
 
 WORKFLOWS = Path(__file__).resolve().parents[1] / "workflows"
@@ -110,6 +110,15 @@ def test_ishigami_spec_loads(tmp_path):
     assert [site.path for site in spec.parameter_sites()] == ["inputs.x1", "inputs.x2", "inputs.x3"]
     x1 = spec.factors()[0]
     assert x1.dist.support() == pytest.approx((-math.pi, math.pi))  # scipy.stats.uniform(loc, scale)
+
+
+def test_execution_section_read_alone_matches_the_whole_spec(tmp_path):
+    path = write(tmp_path, ISHIGAMI)
+    assert read_execution(path) == load_spec(path).execution and read_execution(path).workers == 2
+    broken = write(tmp_path, ISHIGAMI.replace("[run]", "[run"))  # TOML syntax error
+    assert read_execution(broken) is None
+    assert read_execution(write(tmp_path, ISHIGAMI.replace("workers = 2", "workers = -1"))) is None
+    assert read_execution(tmp_path / "absent.toml") is None  # load_spec reports these
 
 
 def test_spec_is_frozen(tmp_path):

@@ -74,3 +74,10 @@ def test_worker_evaluates_model_without_heavy_imports(workflow, tmp_path):
 def test_store_import_is_light():
     loaded = _loaded_in_fresh_process("import sweep.store")
     assert loaded == []  # common practice (start-up cost of worker processes)
+
+
+def test_command_line_parser_is_light():
+    # `sweep run` starts its workers right after parsing its arguments, before the heavy imports
+    # that validating the spec needs: the parser of every command must not load them.
+    loaded = _loaded_in_fresh_process("import sweep.cli; sweep.cli.build_parser()")
+    assert loaded == []  # common practice (start-up cost of a command-line tool)

@@ -114,4 +114,6 @@ def insolation_searth(luminosity_lsun, distance_au):
        (from memory).
     """
     d = np.asarray(distance_au, np.float64)
-    return _scalar_or_array(np.asarray(luminosity_lsun, np.float64) / (d * d))
+    luminosity = np.asarray(luminosity_lsun, np.float64)
+    d_squared = np.multiply(d, d, out=np.empty(np.broadcast_shapes(d.shape, luminosity.shape)))
+    return _scalar_or_array(np.divide(luminosity, d_squared, out=d_squared))

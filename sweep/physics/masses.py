@@ -25,6 +25,8 @@ _M_TN, _M_NJ, _ = CHEN_KIPPING2017_TRANSITIONS_MEARTH
 _R_TN = 10.0**CHEN_KIPPING2017_TERRAN_C * _M_TN**_S_T
 _R_NJ = _R_TN * (_M_NJ / _M_TN) ** _S_N
 _LN_R_TN, _LN_R_NJ = np.log(_R_TN), np.log(_R_NJ)
+#: 1 / slope of the Neptunian and Terran branches, indexed by (radius <= the transition radius).
+_INVERSE_SLOPES = np.array([1.0 / _S_N, 1.0 / _S_T])
 
 
 def _scalar_or_array(x):
@@ -65,11 +67,16 @@ def chen_kipping2017_mass_mearth(radius_rearth, *, ln_radius=None):
     """
     r = np.asarray(radius_rearth, np.float64)
     # one power per radius, with its own branch's exponent (the cap never reaches the Terran branch)
-    exponent = np.where(r <= _R_TN, 1.0 / _S_T, 1.0 / _S_N)
+    exponent = _INVERSE_SLOPES[(r <= _R_TN).view(np.uint8)]  # 1 / S of the radius's branch
     if ln_radius is None:
         return _scalar_or_array(_M_TN * (np.minimum(r, _R_NJ) / _R_TN) ** exponent)
-    x = np.minimum(np.asarray(ln_radius, np.float64), _LN_R_NJ) - _LN_R_TN
-    return _scalar_or_array(_M_TN * np.exp(exponent * x))
+    ln_radius = np.asarray(ln_radius, np.float64)
+    x = np.minimum(ln_radius, _LN_R_NJ, out=np.empty(np.broadcast_shapes(ln_radius.shape, r.shape)))
+    x -= _LN_R_TN
+    x *= exponent
+    mass = np.exp(x, out=x)
+    mass *= _M_TN
+    return _scalar_or_array(mass)
 
 
 def rv_semi_amplitude_ms(planet_mass_mearth, star_mass_msun, period_d, inclination_rad=np.pi / 2,
@@ -152,10 +159,17 @@ def rv_semi_amplitude_from_orbit_ms(planet_mass_mearth, star_mass_msun, period_d
     .. [2] Murray, C. D. & Dermott, S. F. 1999, Solar System Dynamics (Cambridge University
        Press), sec. 2.7 (barycentric orbits).
     """
-    m_p = np.asarray(planet_mass_mearth, np.float64) * _EARTH_IN_SUN
-    a = np.asarray(semi_major_axis_au, np.float64) * (_TWO_PI * AU_M / DAY_S)  # 2 pi a / (1 d) [m/s]
-    k = a * m_p * np.asarray(sin_inclination, np.float64) / (
-        np.asarray(period_d, np.float64) * (np.asarray(star_mass_msun, np.float64) + m_p))
+    m_p, m_s, p, a, sin_i = (np.asarray(v, np.float64) for v in (
+        planet_mass_mearth, star_mass_msun, period_d, semi_major_axis_au, sin_inclination))
+    shape = np.broadcast_shapes(m_p.shape, m_s.shape, p.shape, a.shape, sin_i.shape)
+    m_p = m_p * _EARTH_IN_SUN
+    # K = (2 pi a / (1 d)) m_p sin i / (P (M_* + m_p)), in place
+    k = np.multiply(a, _TWO_PI * AU_M / DAY_S, out=np.empty(shape))  # 2 pi a / (1 d) [m/s]
+    k *= m_p
+    k *= sin_i
+    denominator = np.add(m_s, m_p, out=np.empty(shape))
+    np.multiply(p, denominator, out=denominator)
+    k /= denominator
     e = np.asarray(eccentricity, np.float64)
     if np.any(e):
         k = k / np.sqrt(1.0 - e * e)

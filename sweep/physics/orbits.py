@@ -47,10 +47,19 @@ def semi_major_axis_au(period_d, star_mass_msun, planet_mass_mearth=0.0):
     .. [1] Murray, C. D. & Dermott, S. F. 1999, Solar System Dynamics (Cambridge University
        Press), eq. 2.22.
     """
-    gm = _GM_SUN * (np.asarray(star_mass_msun, np.float64)
-                    + _EARTH_IN_SUN * np.asarray(planet_mass_mearth, np.float64))
-    p_s = np.asarray(period_d, np.float64) * DAY_S
-    return _scalar_or_array(np.cbrt(gm * (p_s / _TWO_PI) ** 2) / AU_M)
+    star, planet, period = (np.asarray(v, np.float64) for v in (star_mass_msun, planet_mass_mearth, period_d))
+    shape = np.broadcast_shapes(star.shape, planet.shape, period.shape)
+    gm = np.multiply(_EARTH_IN_SUN, planet, out=np.empty(shape))
+    gm += star
+    gm *= _GM_SUN
+    # cbrt(gm (P / 2 pi)^2) / au, in place
+    a = np.multiply(period, DAY_S, out=np.empty(shape))
+    a /= _TWO_PI
+    np.square(a, out=a)
+    a *= gm
+    np.cbrt(a, out=a)
+    a /= AU_M
+    return _scalar_or_array(a)
 
 
 def orbital_period_d(semi_major_axis_au, star_mass_msun, planet_mass_mearth=0.0):

@@ -215,11 +215,20 @@ def equilibrium_temperature_K(star_teff_K, star_radius_rsun, distance_au, bond_a
     except KeyError:
         raise ValueError(f"redistribution must be one of {sorted(REDISTRIBUTION_FACTORS)}, "
                          f"not {redistribution!r}") from None
-    ratio = np.asarray(star_radius_rsun, np.float64) * _R_SUN_AU / np.asarray(distance_au,
-                                                                             np.float64)
-    absorbed = f * (1.0 - np.asarray(bond_albedo, np.float64))
-    return _scalar_or_array(np.asarray(star_teff_K, np.float64) * np.sqrt(ratio)
-                            * np.sqrt(np.sqrt(absorbed)))
+    teff, radius, distance, bond = (np.asarray(v, np.float64) for v in (
+        star_teff_K, star_radius_rsun, distance_au, bond_albedo))
+    shape = np.broadcast_shapes(teff.shape, radius.shape, distance.shape, bond.shape)
+    # T_* sqrt(R_* / a) (f (1 - A_B))^(1/4), in place
+    t = np.multiply(radius, _R_SUN_AU, out=np.empty(shape))
+    t /= distance
+    np.sqrt(t, out=t)
+    np.multiply(teff, t, out=t)
+    absorbed = np.subtract(1.0, bond, out=np.empty(shape))
+    absorbed *= f
+    np.sqrt(absorbed, out=absorbed)
+    np.sqrt(absorbed, out=absorbed)
+    t *= absorbed
+    return _scalar_or_array(t)
 
 
 def lambert_phase(phase_angle_rad):
