@@ -278,7 +278,22 @@ class _Layout:
         self.ln_radius = _WithinCell(occurrence.alpha, occurrence.lnr_lo, occurrence.lnr_hi)
         self.ln_period = _WithinCell(occurrence.beta, occurrence.lnp_lo, occurrence.lnp_hi)
         self.star_ids = np.arange(len(stars), dtype=np.int64)
+        # runs of stars with the same envelope (one run when the rates do not depend on the
+        # spectral class): Generator.poisson(lam, size) draws the same numbers as with an array
+        # of equal lam, without checking the array on every call
+        change = np.flatnonzero(np.diff(self.star_envelope)) + 1
+        bounds = np.concatenate([[0], change, [len(stars)]]).astype(int).tolist()
+        self.envelope_runs = [(float(self.star_envelope[a]), b - a) for a, b in zip(bounds[:-1], bounds[1:])]
 
+    def candidate_counts(self, rng: np.random.Generator) -> np.ndarray:
+        """Candidates of every star for one row: Poisson with mean :attr:`star_envelope`."""
+        if len(self.envelope_runs) > _ENVELOPE_RUNS_MAX:
+            return rng.poisson(self.star_envelope)
+        return np.concatenate([rng.poisson(lam, size) for lam, size in self.envelope_runs] + [np.zeros(0, np.int64)])
+
+
+#: Above this many runs of equal envelope, one array call is cheaper than a call per run.
+_ENVELOPE_RUNS_MAX = 4
 
 #: Layouts of recent (star list, occurrence model) pairs, by identity: a worker draws many blocks
 #: with the same model objects. Holds the objects themselves, so that an id is never reused.
@@ -384,7 +399,7 @@ def draw_planets(block: RowBlock, stars: StarTable, occurrence: OccurrenceModel,
     # stream's first draw), which bound the number of planets of the block
     generators = streams.row_generators(block.seed, block.base_index, block.population_source,
                                         streams.CANDIDATES)
-    counts = [rng.poisson(layout.star_envelope) for rng in generators]
+    counts = [layout.candidate_counts(rng) for rng in generators]
     extra = {}
     if has_excess.any():
         excess_rows = np.flatnonzero(has_excess)

@@ -375,3 +375,20 @@ def test_cell_choice_by_table_equals_numpy_searchsorted():
     target = layout.star_start[star] + u * layout.star_total[star]
     slow = np.minimum(np.searchsorted(layout.cumulative, target, side="right"), layout.star_last[star])  # numpy
     assert np.array_equal(planets.choose_cells(layout, star, u), slow)
+
+
+@pytest.mark.parametrize("workflow, n_runs, runs_max", [("demo.toml", 1, 4), ("binned_rates.toml", 80, 4),
+                                                       ("binned_rates.toml", 80, 100)])
+def test_candidate_counts_are_numpys_poisson_of_the_star_envelope(workflow, n_runs, runs_max, monkeypatch):
+    # Reference: numpy's Generator.poisson with the per-star means as one array (what the
+    # equal-envelope runs must reproduce number for number and leave the stream where it would).
+    from sweep.spec import load_spec
+
+    model = load_spec(Path(__file__).resolve().parents[1] / "workflows" / workflow).build_model()
+    layout = planets._layout(model.stars, model.occurrence)
+    assert len(layout.envelope_runs) == n_runs  # produced by this code
+    monkeypatch.setattr(planets, "_ENVELOPE_RUNS_MAX", runs_max)  # 100: one call per run
+    ours, reference = np.random.default_rng(11), np.random.default_rng(11)
+    for _ in range(3):
+        np.testing.assert_array_equal(layout.candidate_counts(ours), reference.poisson(layout.star_envelope))
+    assert ours.bit_generator.state == reference.bit_generator.state
