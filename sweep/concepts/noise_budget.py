@@ -196,10 +196,9 @@ def star_uniforms(block, n_stars: int) -> np.ndarray:
         Uniforms in [0, 1) [1]; row r, star s is the s-th number of row r's stream.
     """
     out = np.empty((len(block), n_stars))
-    for r in range(len(block)):
-        rng = streams.row_generator(block.seed, block.base_index[r], block.population_source[r],
-                                    streams.STAR_PROPERTIES)
-        out[r] = rng.random(n_stars)
+    generators = streams.row_generators(block.seed, block.base_index, block.population_source, streams.STAR_PROPERTIES)
+    for row, rng in zip(out, generators):
+        rng.random(out=row)
     return out
 
 
