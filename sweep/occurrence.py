@@ -45,6 +45,7 @@ References
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 from importlib.resources import files
 from pathlib import Path
@@ -256,17 +257,19 @@ class OccurrenceModel:
             return lognormal
         return np.where(self._upper, self._base * quantile, lognormal)
 
+    @functools.cached_property
+    def _spreads(self):
+        """The distinct spreads of the cells, and each cell's index into them (below, above)."""
+        values, index = np.unique(np.concatenate([self._sig_lo.ravel(), self._sig_hi.ravel()]), return_inverse=True)
+        lo_index, hi_index = index.reshape(2, self.n_classes, self.n_cells)
+        return values, lo_index, hi_index
+
     def _per_row_lognormal(self, z):
         """``exp(sigma z)`` with one z per row, shape ``(n_rows, n_classes, n_cells)``.
 
         The same numbers as the general case, with ``exp`` taken once per row and distinct
         sigma (cells share a few spreads) and then spread over the cells.
         """
-        if getattr(self, "_spreads", None) is None:
-            values, index = np.unique(np.concatenate([self._sig_lo.ravel(), self._sig_hi.ravel()]),
-                                      return_inverse=True)
-            lo_index, hi_index = index.reshape(2, self.n_classes, self.n_cells)
-            self._spreads = (values, lo_index, hi_index)
         values, lo_index, hi_index = self._spreads
         per_value = np.exp(z[:, None] * values)  # (n_rows, n_values)
         negative = z < 0
