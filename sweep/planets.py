@@ -283,13 +283,16 @@ class _Layout:
         # of equal lam, without checking the array on every call
         change = np.flatnonzero(np.diff(self.star_envelope)) + 1
         bounds = np.concatenate([[0], change, [len(stars)]]).astype(int).tolist()
-        self.envelope_runs = [(float(self.star_envelope[a]), b - a) for a, b in zip(bounds[:-1], bounds[1:])]
+        self.envelope_runs = [(float(self.star_envelope[a]), b - a) for a, b in zip(bounds[:-1], bounds[1:]) if b > a]
 
     def candidate_counts(self, rng: np.random.Generator) -> np.ndarray:
         """Candidates of every star for one row: Poisson with mean :attr:`star_envelope`."""
-        if len(self.envelope_runs) > _ENVELOPE_RUNS_MAX:
+        if len(self.envelope_runs) == 1:
+            lam, size = self.envelope_runs[0]
+            return rng.poisson(lam, size)
+        if not self.envelope_runs or len(self.envelope_runs) > _ENVELOPE_RUNS_MAX:
             return rng.poisson(self.star_envelope)
-        return np.concatenate([rng.poisson(lam, size) for lam, size in self.envelope_runs] + [np.zeros(0, np.int64)])
+        return np.concatenate([rng.poisson(lam, size) for lam, size in self.envelope_runs])
 
 
 #: Above this many runs of equal envelope, one array call is cheaper than a call per run.
